@@ -1,0 +1,349 @@
+"""The field protocol shared by every family, and the dense implementation of its
+primitives on top of ``gfla.kernels.dense``.
+
+A field object carries the arithmetic; matrices are plain numpy integer arrays. Public
+methods validate and convert their inputs, then call the generic algorithms of
+``gfla.linalg`` which in turn use the small set of primitives a family supplies
+(``_matmul``, ``_rref``, ``_hessenberg``, ``_berkowitz`` and the elementwise operations).
+Internally every matrix is a C-contiguous uint64 array (the kernels' single dtype).
+"""
+
+import numbers
+from collections import namedtuple
+
+import numpy as np
+
+from ..errors import InputError, NotAUnitError
+
+__all__ = ["Field", "Solution"]
+
+Solution = namedtuple("Solution", ["consistent", "particular", "nullspace"])
+Solution.__doc__ = """Result of ``solve``: ``consistent`` (bool), ``particular`` (one
+solution x of A x = b, or None), ``nullspace`` (rows spanning {x : A x = 0}; over Z/n a
+generating set of that module)."""
+
+
+class Field:
+    """Base class of gfla's fields and rings. Subclasses set the attributes below and a
+    context array ``_ctx`` for the dense kernels."""
+
+    spec = None
+    size = None
+    characteristic = None
+    is_field = True
+    modulus = None
+    dtype = np.dtype(np.int64)
+    _ctx = None
+
+    def __repr__(self):
+        if self.modulus is not None:
+            return f"gfla.field({self.spec!r}, modulus={self.modulus:#x})"
+        return f"gfla.field({self.spec!r})"
+
+    def __eq__(self, other):
+        return (isinstance(other, Field) and type(other) is type(self)
+                and other.spec == self.spec and other.modulus == self.modulus)
+
+    def __hash__(self):
+        return hash((type(self).__name__, self.spec, self.modulus))
+
+    # ------------------------------------------------------------------ conversion
+    def asarray(self, A, name="matrix", ndim=2):
+        """Validate ``A`` as an array of field elements and return a copy of dtype
+        ``self.dtype``.
+
+        Raises
+        ------
+        InputError
+            When ``A`` is not an integer array of the expected number of dimensions, or
+            an entry lies outside 0 .. order-1 (the message names row and column).
+        """
+        return self._out(self._validate(A, name, ndim))
+
+    def _validate(self, A, name="matrix", ndim=2):
+        """Validate and convert to the internal uint64 representation."""
+        U = self._validate_entries(A, name, ndim)
+        if U.size == 0:
+            raise InputError(f"{name} is empty")
+        return U
+
+    def _validate_entries(self, A, name, ndim):
+        if isinstance(A, np.ndarray) and A.dtype.kind in "iu":
+            arr = A
+            if arr.ndim != ndim and ndim is not None:
+                raise InputError(_ndim_message(name, ndim, arr.ndim))
+            if arr.dtype.kind == "i":
+                bad = arr < 0
+            else:
+                bad = np.zeros(arr.shape, dtype=bool)
+            if self.size <= np.iinfo(np.uint64).max:
+                bad = bad | (arr.astype(np.uint64, copy=False) >= np.uint64(self.size)) & ~bad
+            if bad.any():
+                idx = tuple(int(i) for i in np.argwhere(bad)[0])
+                raise InputError(self._range_message(name, idx, int(arr[idx])))
+            return np.ascontiguousarray(arr.astype(np.uint64))
+        if isinstance(A, np.ndarray) and A.dtype.kind == "b":
+            return self._validate_entries(A.astype(np.int64), name, ndim)
+        if isinstance(A, np.ndarray) and A.dtype.kind not in "O":
+            raise InputError(f"{name} must hold integers, got dtype {A.dtype}")
+        try:
+            obj = np.array(A, dtype=object)
+        except (ValueError, TypeError):
+            raise InputError(f"{name} is ragged: rows of different lengths") from None
+        if ndim is not None and obj.ndim != ndim:
+            if ndim == 2 and obj.ndim == 1 and obj.size and all(
+                    isinstance(r, (list, tuple)) for r in obj):
+                raise InputError(f"{name} is ragged: rows of different lengths")
+            raise InputError(_ndim_message(name, ndim, obj.ndim))
+        out = np.empty(obj.shape, dtype=np.uint64)
+        for idx, x in np.ndenumerate(obj):
+            if isinstance(x, (bool, np.bool_)) or not isinstance(x, numbers.Integral):
+                raise InputError(f"{name}{_where(idx)}: {x!r} is not an integer")
+            x = int(x)
+            if x < 0 or x >= self.size:
+                raise InputError(self._range_message(name, idx, x))
+            out[idx] = x
+        return out
+
+    def _range_message(self, name, idx, value):
+        return (f"{name}{_where(idx)}: {value} is outside {self.spec} "
+                f"(entries must be 0 .. {self.size - 1})")
+
+    def _out(self, U):
+        """Internal uint64 -> returned dtype."""
+        return np.asarray(U).astype(self.dtype)
+
+    def _square(self, A, name="matrix"):
+        U = self._validate(A, name)
+        if U.shape[0] != U.shape[1]:
+            raise InputError(f"{name} must be square, got {U.shape[0]} x {U.shape[1]}")
+        return U
+
+    def _element(self, a, name="element"):
+        if isinstance(a, (bool, np.bool_)) or not isinstance(a, numbers.Integral):
+            raise InputError(f"{name} {a!r} is not an integer")
+        a = int(a)
+        if a < 0 or a >= self.size:
+            raise InputError(f"{name} {a} is outside {self.spec}")
+        return a
+
+    def identity(self, n):
+        return self._out(self._identity(n))
+
+    def zeros(self, shape):
+        return np.zeros(shape, dtype=self.dtype)
+
+    def _identity(self, n):
+        return np.eye(n, dtype=np.uint64)
+
+    # ------------------------------------------------------------------ elementwise
+    def _ew2(self, kernel, A, B):
+        A = np.ascontiguousarray(A, dtype=np.uint64)
+        B = np.ascontiguousarray(B, dtype=np.uint64)
+        A, B = np.broadcast_arrays(A, B)
+        a = np.ascontiguousarray(A).ravel()
+        b = np.ascontiguousarray(B).ravel()
+        out = np.empty_like(a)
+        kernel(a, b, self._ctx, out)
+        return out.reshape(A.shape)
+
+    def _add(self, A, B):
+        from ..kernels import dense
+        return self._ew2(dense.ew_add, A, B)
+
+    def _sub(self, A, B):
+        from ..kernels import dense
+        return self._ew2(dense.ew_sub, A, B)
+
+    def _mul(self, A, B):
+        from ..kernels import dense
+        return self._ew2(dense.ew_mul, A, B)
+
+    def _neg(self, A):
+        from ..kernels import dense
+        a = np.ascontiguousarray(A, dtype=np.uint64).ravel()
+        out = np.empty_like(a)
+        dense.ew_neg(a, self._ctx, out)
+        return out.reshape(np.shape(A))
+
+    def _scale(self, A, s):
+        from ..kernels import dense
+        a = np.ascontiguousarray(A, dtype=np.uint64).ravel()
+        out = np.empty_like(a)
+        dense.ew_scale(a, np.uint64(s), self._ctx, out)
+        return out.reshape(np.shape(A))
+
+    def _inv_scalar(self, a):
+        from ..kernels import dense
+        x = int(dense.f_inv(np.uint64(a), self._ctx)) if a else 0
+        if x == 0:
+            import math
+            raise NotAUnitError(f"{a} is not a unit of {self.spec}", element=a,
+                                gcd=math.gcd(a, self.size) if not self.is_field else None)
+        return x
+
+    def _mul_scalar(self, a, b):
+        from ..kernels import dense
+        return int(dense.f_mul(np.uint64(a), np.uint64(b), self._ctx))
+
+    def _add_scalar(self, a, b):
+        from ..kernels import dense
+        return int(dense.f_add(np.uint64(a), np.uint64(b), self._ctx))
+
+    def _sub_scalar(self, a, b):
+        from ..kernels import dense
+        return int(dense.f_sub(np.uint64(a), np.uint64(b), self._ctx))
+
+    def _trace(self, U):
+        from ..kernels import dense
+        return int(dense.trace(U, self._ctx))
+
+    def add(self, A, B):
+        """Elementwise sum."""
+        return self._out(self._add(self._validate(A, "A", None), self._validate(B, "B", None)))
+
+    def sub(self, A, B):
+        """Elementwise difference A - B."""
+        return self._out(self._sub(self._validate(A, "A", None), self._validate(B, "B", None)))
+
+    def mul(self, A, B):
+        """Elementwise (Hadamard) product."""
+        return self._out(self._mul(self._validate(A, "A", None), self._validate(B, "B", None)))
+
+    def neg(self, A):
+        """Elementwise negation."""
+        return self._out(self._neg(self._validate(A, "A", None)))
+
+    def inv_element(self, a):
+        """Multiplicative inverse of one element (``NotAUnitError`` if there is none)."""
+        return self._inv_scalar(self._element(a))
+
+    # ------------------------------------------------------------------ primitives
+    def _matmul(self, A, B):
+        from ..linalg.multiply import dense_matmul
+        return dense_matmul(self, A, B)
+
+    def _rref(self, M, ncols_pivot=None):
+        """Gauss-Jordan in place on a uint64 matrix; returns (pivots, det)."""
+        from ..kernels import dense
+        if ncols_pivot is None:
+            ncols_pivot = M.shape[1]
+        piv, det = dense.rref(M, ncols_pivot, self._ctx)
+        return piv, int(det)
+
+    def _rank(self, U):
+        piv, _ = self._rref(U.copy())
+        return len(piv)
+
+    def _det(self, U):
+        piv, det = self._rref(U.copy())
+        return det if len(piv) == U.shape[0] else 0
+
+    def _hessenberg(self, U):
+        from ..kernels import dense
+        return [int(c) for c in dense.hessenberg_charpoly(U.copy(), self._ctx)]
+
+    def _berkowitz(self, U):
+        from ..kernels import dense
+        return [int(c) for c in dense.berkowitz_charpoly(np.ascontiguousarray(U), self._ctx)]
+
+    # ------------------------------------------------------------------ public API
+    def matmul(self, A, B):
+        """Matrix product A B."""
+        from ..linalg import multiply
+        return self._out(multiply.matmul(self, self._validate(A, "A"), self._validate(B, "B")))
+
+    def rank(self, A):
+        """Rank of A (over Z/n: the McCoy rank)."""
+        from ..linalg import eliminate
+        return eliminate.rank(self, self._validate(A))
+
+    def rref(self, A):
+        """Reduced row echelon form and pivot columns (over Z/n: the Howell form)."""
+        from ..linalg import eliminate
+        R, piv = eliminate.rref(self, self._validate(A))
+        return self._out(R), tuple(int(p) for p in piv)
+
+    def nullspace(self, A):
+        """Basis (rows) of the right kernel {x : A x = 0}; over Z/n a generating set."""
+        from ..linalg import eliminate
+        return self._out(eliminate.nullspace(self, self._validate(A)))
+
+    def solve(self, A, b):
+        """Solve A x = b: ``Solution(consistent, particular, nullspace)``."""
+        from ..linalg import eliminate
+        U = self._validate(A)
+        bv = self._validate(b, "rhs", 1)
+        if bv.shape[0] != U.shape[0]:
+            raise InputError(f"rhs has {bv.shape[0]} entries, the matrix has {U.shape[0]} rows")
+        ok, x, N = eliminate.solve(self, U, bv)
+        return Solution(ok, None if x is None else self._out(x), self._out(N))
+
+    def inv(self, A, method="auto", verify=False):
+        """Inverse of a square matrix.
+
+        Parameters
+        ----------
+        method : {"auto", "gauss-jordan", "cayley-hamilton", "hensel", "crt"}
+        verify : bool
+            Run Freivalds' randomised check of A X = I before returning.
+        """
+        from ..linalg import inverse
+        return self._out(inverse.inv(self, self._square(A), method=method, verify=verify))
+
+    def det(self, A):
+        """Determinant."""
+        from ..linalg import eliminate
+        return eliminate.det(self, self._square(A))
+
+    def charpoly(self, A, method="auto"):
+        """Characteristic polynomial det(xI - A), highest degree first.
+
+        Parameters
+        ----------
+        method : {"auto", "hessenberg", "berkowitz", "csanky"}
+        """
+        from ..linalg import charpoly
+        return charpoly.charpoly(self, self._square(A), method=method)
+
+    def minpoly(self, A):
+        """Minimal polynomial, highest degree first (monic)."""
+        from ..linalg import charpoly
+        return charpoly.minpoly(self, self._square(A))
+
+    def power(self, A, e):
+        """A^e for any integer e (negative: a power of the inverse)."""
+        from ..linalg import power
+        return self._out(power.power(self, self._square(A), e))
+
+    def order(self, A):
+        """Multiplicative order of an invertible matrix."""
+        from ..linalg import power
+        return power.order(self, self._square(A))
+
+    def random(self, shape, invertible=False, seed=None):
+        """Uniformly random matrix; ``invertible=True`` draws uniformly from GL(n)."""
+        from ..linalg import random as rnd
+        return self._out(rnd.random(self, shape, invertible=invertible, seed=seed))
+
+    def poly_eval_matrix(self, poly, A):
+        """Evaluate a polynomial (highest degree first) at a square matrix (Horner)."""
+        from ..linalg import charpoly
+        return self._out(charpoly.poly_at_matrix(self, poly, self._square(A)))
+
+    def info(self):
+        """Order, characteristic, modulus and a generator of the multiplicative group."""
+        raise NotImplementedError
+
+
+def _where(idx):
+    if len(idx) == 2:
+        return f" row {idx[0] + 1}, column {idx[1] + 1}"
+    if len(idx) == 1:
+        return f" entry {idx[0] + 1}"
+    return " at index " + ",".join(str(i) for i in idx)
+
+
+def _ndim_message(name, want, got):
+    kinds = {1: "a vector", 2: "a matrix (2-D)", 3: "a stack of matrices (3-D)"}
+    return f"{name} must be {kinds.get(want, f'{want}-D')}, got {got}-D input"

@@ -1,0 +1,1 @@
+"""Reading what users write: field specs, matrix text, matrix files."""
