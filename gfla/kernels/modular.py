@@ -2,8 +2,9 @@
 
 Values are uint64 in [0, n). The modulus is passed as uint64; the value 0 stands for
 n = 2^64, where arithmetic is the machine's wrapping arithmetic. Products use a float64
-quotient estimate while n < 2^50 and an exact 128-bit product with shift-and-subtract
-reduction above that, so no product overflows silently anywhere in the range.
+quotient estimate while n < 2^50, the same estimate on 21-bit chunks of one factor
+while n < 2^62, and an exact 128-bit product with shift-and-subtract reduction above
+that, so no product overflows silently anywhere in the range.
 
 Shared by GF(p) (``fields.prime``) and Z/n (``fields.ring``).
 """
@@ -81,6 +82,36 @@ def _mulmod_wide(a, b, n):
     return r
 
 
+_CHUNK = np.uint64(21)
+_CHUNK_MASK = np.uint64((1 << 21) - 1)
+_CHUNK_LIMIT = np.uint64(1 << 62)
+
+
+@njit(cache=True, inline="always")
+def _mulmod_short(x, c, n):
+    """x * c mod n for c < 2^21 and n < 2^62: the float64 quotient estimate is off by at
+    most one, so the remainder computed with wrapping arithmetic lies in (-n, 2n)."""
+    q = np.uint64(np.float64(x) * np.float64(c) / np.float64(n))
+    r = np.int64(x * c - q * n)
+    ns = np.int64(n)
+    while r < 0:
+        r += ns
+    while r >= ns:
+        r -= ns
+    return np.uint64(r)
+
+
+@njit(cache=True)
+def _mulmod_chunked(a, b, n):
+    # Horner in base 2^21 over the three chunks of b: r = r * 2^21 + a * chunk.
+    r = _U0
+    for s in range(2, -1, -1):
+        c = (b >> (_CHUNK * np.uint64(s))) & _CHUNK_MASK
+        r = _mulmod_short(r, np.uint64(1 << 21), n)
+        r = addmod(r, _mulmod_short(a, c, n), n)
+    return r
+
+
 @njit(cache=True, inline="always")
 def mulmod(a, b, n):
     if n == _U0:
@@ -96,6 +127,8 @@ def mulmod(a, b, n):
         while r >= ns:
             r -= ns
         return np.uint64(r)
+    if n < _CHUNK_LIMIT:
+        return _mulmod_chunked(a, b, n)
     return _mulmod_wide(a, b, n)
 
 
