@@ -47,8 +47,9 @@ class SingularMatrixError(MathError):
     Attributes
     ----------
     kernel_vector : list of int or None
-        A nonzero vector v with A v = 0 (checked before raising) over a field, or over a
-        residue ring a vector v with A v = 0 that is nonzero modulo ``prime``.
+        A nonzero vector v with A v = 0 (checked before raising). Over Z/n it is
+        (n / p) times a kernel vector modulo the prime p = ``prime``, so A v = 0 mod n
+        and v is nonzero mod n.
     prime : int or None
         Over Z/n: a prime dividing both n and det(A).
     """

@@ -270,3 +270,11 @@ def test_inverse_verify_and_singular_certificate():
     assert v.any() and not F.matmul(A, v.reshape(-1, 1)).any()
     B = F.random(12, invertible=True, seed=1)
     assert np.array_equal(F.matmul(B, F.inv(B, verify=True)), F.identity(12))
+
+
+def test_known_irreducible_moduli_are_irreducible():
+    # galois (Poly.is_irreducible) is the reference for the shortcut list.
+    import galois
+    from gfla.fields.extension import KNOWN_IRREDUCIBLE
+    for m in KNOWN_IRREDUCIBLE:
+        assert galois.Poly.Int(m, field=galois.GF(2)).is_irreducible()

@@ -16,6 +16,11 @@ DEFAULT_MODULI = {
     16: 0x1002D,
 }
 
+# Moduli known to be irreducible without asking galois (whose import costs most of a
+# second): the defaults and the FIPS 197 polynomial. Each is re-checked with galois in
+# the tests.
+KNOWN_IRREDUCIBLE = frozenset(DEFAULT_MODULI.values()) | {0x11B}
+
 _CONTEXT_CACHE = {}
 
 
@@ -30,8 +35,8 @@ def poly_text(m):
 
 def _gf2_poly(m):
     import galois
-    return galois.Poly([(m >> i) & 1 for i in range(m.bit_length() - 1, -1, -1)],
-                       field=galois.GF(2))
+    # pure-Python arithmetic: galois' numba modes would compile for seconds per process
+    return galois.Poly.Int(m, field=galois.GF(2, compile="python-calculate"))
 
 
 def _poly_int(poly):
@@ -47,7 +52,7 @@ def check_modulus(k, modulus):
     if modulus.bit_length() - 1 != k:
         raise InputError(f"modulus {modulus:#x} has degree {modulus.bit_length() - 1}, "
                          f"GF(2^{k}) needs degree {k}")
-    if DEFAULT_MODULI.get(k) == modulus:
+    if modulus in KNOWN_IRREDUCIBLE:
         return
     f = _gf2_poly(modulus)
     if not f.is_irreducible():

@@ -79,7 +79,7 @@ def _atom(t, i, text, what):
             raise InputError(f"{what} {text!r}: missing ')'")
         return v, i + 1
     if tok == "-":
-        v, i = _atom(t, i + 1, text, what)
+        v, i = _power(t, i + 1, text, what)
         return -v, i
     if tok[:2].lower() == "0x":
         return int(tok, 16), i + 1
@@ -128,7 +128,7 @@ def parse_field_spec(spec):
 
 
 def parse_modulus(modulus):
-    """A GF(2^k) modulus given as an int or as text (``0x11b``, ``283``)."""
+    """A GF(2^k) modulus given as an int or as hexadecimal text (``0x11b`` or ``11b``)."""
     if modulus is None:
         return None
     if isinstance(modulus, bool):
@@ -136,11 +136,12 @@ def parse_modulus(modulus):
     if isinstance(modulus, int):
         return modulus
     if isinstance(modulus, str):
+        # Text is hexadecimal, with or without 0x (the CLI's --modulus HEX convention).
         s = modulus.strip()
         try:
-            return int(s, 16) if s.lower().startswith("0x") else parse_int_expr(s, "modulus")
+            return int(s, 16)
         except ValueError:
-            raise InputError(f"modulus {modulus!r} is not an integer") from None
+            raise InputError(f"modulus {modulus!r} is not a hexadecimal integer") from None
     try:
         import numbers
         if isinstance(modulus, numbers.Integral):

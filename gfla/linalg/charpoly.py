@@ -100,13 +100,15 @@ def poly_at_matrix(F, poly, U):
     return X
 
 
-def minpoly_factors(F, U):
+def minpoly_factors(F, U, char=None):
     """[(irreducible f, exponent in the minimal polynomial)] over a field."""
     from . import polynomials
     from .eliminate import rank
     n = U.shape[0]
     out = []
-    for f, m in polynomials.factor(F, charpoly(F, U)):
+    if char is None:
+        char = charpoly(F, U)
+    for f, m in polynomials.factor(F, char):
         e = 1
         if m > 1:
             target = m * (len(f) - 1)
@@ -123,8 +125,13 @@ def minpoly(F, U):
     if not F.is_field:
         return _ring_minpoly(F, U)
     from . import polynomials
+    c = charpoly(F, U)
+    if polynomials.is_squarefree(F, c):
+        # every irreducible factor has multiplicity 1, so the minimal polynomial, which
+        # has every irreducible factor of the charpoly, is the charpoly itself
+        return c
     result = [1]
-    for f, e in minpoly_factors(F, U):
+    for f, e in minpoly_factors(F, U, c):
         result = polynomials.poly_mul(F, result, polynomials.poly_pow(F, f, e))
     return result
 

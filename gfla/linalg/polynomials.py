@@ -5,15 +5,19 @@ galois."""
 import functools
 
 __all__ = ["galois_field", "to_galois", "from_galois", "factor", "poly_mul",
-           "poly_pow", "x_power_is_one"]
+           "poly_pow", "x_power_is_one", "is_squarefree"]
 
 
 @functools.lru_cache(maxsize=None)
 def _galois_field_cached(kind, order, modulus):
     import galois
+    # galois' numba modes compile per process (about 10 s for a factorisation); the
+    # pure-Python mode answers the small polynomial questions gfla asks in well under
+    # a second. The modulus was already checked irreducible by the field.
     if kind == "extension":
-        return galois.GF(order, irreducible_poly=modulus)
-    return galois.GF(order)
+        return galois.GF(order, irreducible_poly=modulus, compile="python-calculate",
+                         verify=False)
+    return galois.GF(order, compile="python-calculate", verify=False)
 
 
 def galois_field(F):
@@ -41,6 +45,16 @@ def factor(F, coeffs):
         return []
     facs, mults = f.factors()
     return [(from_galois(g), int(m)) for g, m in zip(facs, mults)]
+
+
+def is_squarefree(F, coeffs):
+    """Whether the polynomial has no repeated factor: gcd(f, f') = 1 (f' != 0)."""
+    import galois
+    f = to_galois(F, coeffs)
+    d = f.derivative()
+    if d == 0:
+        return f.degree == 0
+    return galois.gcd(f, d).degree == 0
 
 
 def poly_mul(F, a, b):
