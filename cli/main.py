@@ -477,3 +477,9 @@ def demo(sections, as_json):
 
 if __name__ == "__main__":  # pragma: no cover
     main()
+
+
+# --------------------------------------------------------------------------- job groups
+from .bench import bench as _bench  # noqa: E402
+
+cli.add_command(_bench)
