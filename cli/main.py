@@ -330,12 +330,19 @@ def solve(field_spec, modulus, matrix_text, input_path, rhs_text, rhs_path, hex_
     consistent = bool(solution.consistent)
     particular = solution.particular if consistent else None
     basis = solution.nullspace
+    left = solution.left_vector
     if as_json:
-        emit_json({**base_payload(F), "consistent": consistent, "solution": particular,
-                   "nullspace": basis})
+        payload = {**base_payload(F), "consistent": consistent, "solution": particular,
+                   "nullspace": basis}
+        if left is not None:
+            payload["certificate"] = {"left_vector": left}
+        emit_json(payload)
         return
     click.echo(f"consistent: {'yes' if consistent else 'no'}")
     if not consistent:
+        if left is not None:
+            click.echo("certificate: y A = 0 and y b != 0 for y = "
+                       + format_vector(left, F, hex_text))
         return
     click.echo(f"solution: {format_vector(particular, F, hex_text)}")
     dimension = len(basis)

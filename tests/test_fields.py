@@ -278,3 +278,16 @@ def test_known_irreducible_moduli_are_irreducible():
     from gfla.fields.extension import KNOWN_IRREDUCIBLE
     for m in KNOWN_IRREDUCIBLE:
         assert galois.Poly.Int(m, field=galois.GF(2)).is_irreducible()
+
+
+def test_inconsistent_system_carries_a_left_certificate():
+    # y A = 0 and y b != 0 proves there is no solution (common practice).
+    for spec in ("GF(7)", "GF(2)", "GF(2^8)"):
+        F = gfla.field(spec)
+        A = np.array([[1, 1], [1, 1], [0, 1]])
+        b = np.array([1, 0, 1])
+        sol = F.solve(A, b)
+        assert not sol.consistent and sol.particular is None
+        y = sol.left_vector.reshape(1, -1)
+        assert not F.matmul(y, A).any()
+        assert F.matmul(y, b.reshape(-1, 1)).any()

@@ -17,10 +17,12 @@ from ..errors import InputError, NotAUnitError
 
 __all__ = ["Field", "Solution"]
 
-Solution = namedtuple("Solution", ["consistent", "particular", "nullspace"])
+Solution = namedtuple("Solution", ["consistent", "particular", "nullspace", "left_vector"],
+                      defaults=(None,))
 Solution.__doc__ = """Result of ``solve``: ``consistent`` (bool), ``particular`` (one
 solution x of A x = b, or None), ``nullspace`` (rows spanning {x : A x = 0}; over Z/n a
-generating set of that module)."""
+generating set of that module), ``left_vector`` (over a field, when inconsistent: a
+certificate y with y A = 0 and y b != 0)."""
 
 
 class Field:
@@ -277,7 +279,10 @@ class Field:
         if bv.shape[0] != U.shape[0]:
             raise InputError(f"rhs has {bv.shape[0]} entries, the matrix has {U.shape[0]} rows")
         ok, x, N = eliminate.solve(self, U, bv)
-        return Solution(ok, None if x is None else self._out(x), self._out(N))
+        y = None
+        if not ok and self.is_field:
+            y = self._out(eliminate.left_certificate(self, U, bv))
+        return Solution(ok, None if x is None else self._out(x), self._out(N), y)
 
     def inv(self, A, method="auto", verify=False):
         """Inverse of a square matrix.
