@@ -16,7 +16,7 @@ import multiprocessing
 
 __all__ = ["factor_integer", "factor_q_power_minus_one", "cyclic_order"]
 
-_FAST_LIMIT = 1 << 96
+_FAST_LIMIT = 1 << 64
 DEFAULT_TIMEOUT = 30.0
 
 
