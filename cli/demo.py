@@ -17,8 +17,9 @@ from .common import format_element, format_matrix, format_polynomial, format_vec
 __all__ = ["Section", "SECTIONS", "demo_section", "analyse_matrix", "build_sections",
            "report_json", "report_text"]
 
-INVENTED_NOTE = ("All data in this demo is invented for illustration (the Wrenlock cipher "
-                 "and the Hollowfen archive do not exist); it is not a set of reference values.")
+INVENTED_NOTE = ("All data in this demo is invented for illustration (the Wrenlock and Brackenmoth ciphers, "
+                 "the Hollowfen and Fennick Bay archives do not exist); it is not a set of "
+                 "reference values.")
 
 
 @dataclass
@@ -39,6 +40,8 @@ class Section:
     matrices: list = dataclass_field(default_factory=list)
     analysis: dict = dataclass_field(default_factory=dict)
     findings: list = dataclass_field(default_factory=list)
+    payload: dict = None
+    text: str = None
 
 
 SECTIONS = {}
@@ -166,6 +169,31 @@ def archive_section(gfla):
 
 # --------------------------------------------------------------------------- report
 
+JOB_SECTIONS = [
+    ("erasure", "An invented archive over 14 disks: four fail, the file comes back",
+     "gfla.jobs.erasure.demo"),
+    ("mds", "An invented lightweight cipher's mixing layer: MDS or not, and a cheaper one",
+     "gfla.jobs.mixing.demo"),
+    ("keysched", "The invented cipher's key schedule: period, weak keys, a leaked key",
+     "gfla.jobs.keysched.demo"),
+]
+
+
+def _register_job_section(name, title, module_name):
+    @demo_section(name)
+    def build(gfla):
+        import importlib
+
+        module = importlib.import_module(module_name)
+        data = module.demo_section(False)
+        return Section(name=name, title=title, story="", field=None, payload=data,
+                       text=module.format_text(data))
+
+
+for _name, _title, _module in JOB_SECTIONS:
+    _register_job_section(_name, _title, _module)
+
+
 def build_sections(names=None):
     """Run the registered sections (all, in registration order, or those named)."""
     import gfla
@@ -182,6 +210,9 @@ def report_json(sections):
     """The demo as one JSON-ready dict: ``{"demo": [...], "note": ...}``."""
     out = []
     for s in sections:
+        if s.payload is not None:
+            out.append({"name": s.name, "title": s.title, **jsonable(s.payload)})
+            continue
         F = s.field
         item = {"name": s.name, "title": s.title, "story": s.story, "field": F.spec,
                 "subject": s.subject}
@@ -225,6 +256,12 @@ def report_text(sections):
     """The demo as a readable text report."""
     blocks = [_wrap(INVENTED_NOTE)]
     for s in sections:
+        if s.text is not None:
+            head, _, rest = s.text.strip().partition("\n")
+            if not head.startswith("=="):
+                head = f"== {head} =="
+            blocks.append(f"{head}\n{rest.strip()}")
+            continue
         F, hex_output = s.field, _hex_field(s.field)
         modulus = f", modulus 0x{int(F.modulus):x}" if getattr(F, "modulus", None) else ""
         lines = [f"== {s.title} ==", f"field: {F.spec}{modulus}", _wrap(s.story)]

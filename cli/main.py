@@ -490,7 +490,9 @@ if __name__ == "__main__":  # pragma: no cover
 from .bench import bench as _bench  # noqa: E402
 from .erasure import erasure as _erasure  # noqa: E402
 from .keysched import keysched as _keysched  # noqa: E402
+from .mixing import mixing as _mixing  # noqa: E402
 
 cli.add_command(_bench)
 cli.add_command(_erasure)
 cli.add_command(_keysched)
+cli.add_command(_mixing)

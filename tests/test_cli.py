@@ -328,8 +328,9 @@ def test_demo_runs_and_its_numbers_recompute_with_galois():
     assert "rebuilt payload equals the stored one: yes" in text
     data = ok_json("demo")
     names = [s["name"] for s in data["demo"]]
-    assert names == ["mixing", "archive"]
-    for section in data["demo"]:
+    assert names[:2] == ["mixing", "archive"]
+    assert {"erasure", "mds", "keysched"} <= set(names)
+    for section in data["demo"][:2]:
         assert section["field"] == "GF(2^8)" and section["modulus"] == 0x11B
         matrices = {m["label"]: m["matrix"] for m in section["matrices"]}
         subject = next(rows for label, rows in matrices.items()
