@@ -211,7 +211,7 @@ def report_json(sections):
     out = []
     for s in sections:
         if s.payload is not None:
-            out.append({"name": s.name, "title": s.title, **jsonable(s.payload)})
+            out.append({"title": s.title, **jsonable(s.payload), "name": s.name})
             continue
         F = s.field
         item = {"name": s.name, "title": s.title, "story": s.story, "field": F.spec,
