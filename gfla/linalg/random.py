@@ -46,4 +46,6 @@ def random(F, shape, invertible=False, seed=None):
 def _draw(F, rng, shape):
     if F.size == 1 << 64:
         return rng.integers(0, 1 << 64, size=shape, dtype=np.uint64)
-    return rng.integers(0, F.size, size=shape, dtype=np.uint64)
+    # GF(2) keeps 0/1 matrices as uint8 (an eighth of the memory of uint64)
+    dtype = np.uint8 if F.size == 2 else np.uint64
+    return rng.integers(0, F.size, size=shape, dtype=dtype)
