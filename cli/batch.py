@@ -34,8 +34,7 @@ def batch():
 class _Progress:
     """A progress bar on stderr: records done, rate, time left (from the input done)."""
 
-    def __init__(self, unit):
-        self.unit = unit
+    def __init__(self):
         self.bar = None
         self.start = time.perf_counter()
         self.first_records = None
@@ -117,7 +116,9 @@ def run(input_path, out, workers, resume, engine, scheduler, chunk_size, quiet, 
 
     if scheduler and engine != "dask":
         raise click.UsageError("--scheduler needs --engine dask")
-    progress = None if quiet else _Progress("records")
+    # The bar redraws itself with carriage returns: only on a terminal (a log file gets
+    # the summary line alone).
+    progress = None if quiet or not sys.stderr.isatty() else _Progress()
     try:
         summary = run_batch(input_path, out, workers=workers, resume=resume, engine=engine,
                             scheduler=scheduler, chunk_size=chunk_size, progress=progress)

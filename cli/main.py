@@ -487,11 +487,13 @@ if __name__ == "__main__":  # pragma: no cover
 
 
 # --------------------------------------------------------------------------- job groups
+from .batch import batch as _batch  # noqa: E402
 from .bench import bench as _bench  # noqa: E402
 from .erasure import erasure as _erasure  # noqa: E402
 from .keysched import keysched as _keysched  # noqa: E402
 from .mixing import mixing as _mixing  # noqa: E402
 
+cli.add_command(_batch)
 cli.add_command(_bench)
 cli.add_command(_erasure)
 cli.add_command(_keysched)

@@ -1,0 +1,342 @@
+"""Bulk binary input: a ``.npy`` stack with a JSON sidecar, results as ``.npy``.
+
+Input: ``X.npy`` holds an integer array of shape ``(N, m, n)``; ``X.json`` beside it
+names ``field``, ``op`` and, optionally, ``modulus``, ``count``, ``shape`` (``[m, n]``),
+``dtype``, ``rhs`` (for ``solve``: a ``.npy`` of shape ``(N, m)``, relative to the
+sidecar), ``exponent`` (for ``power``). Whatever the sidecar states is checked against
+the array; a mismatch makes the input unreadable (exit code 2), nothing is guessed.
+
+Output for ``--out R.npy``: ``R.npy`` (results, one per input matrix, in input order),
+``R.json`` (a sidecar describing them), ``R.errors.jsonl`` (one line per failed matrix:
+``{"index": k, "op": ..., "error": {...}}``; its slot in ``R.npy`` is zero).
+"""
+
+import json
+import os
+
+import numpy as np
+
+from ...errors import InconsistentSystemError, InputError
+from .ops import BULK_OPERATIONS, OPERATIONS
+from .records import error_object, field_of, limit_threads
+
+__all__ = ["BulkInput", "open_bulk", "bulk_paths", "result_layout", "process_stack",
+           "StackResult", "SIDECAR_KEYS"]
+
+SIDECAR_KEYS = ("field", "modulus", "op", "count", "shape", "dtype", "rhs", "exponent")
+
+
+def bulk_paths(out):
+    """(results .npy, sidecar .json, errors .jsonl) for ``--out``."""
+    out = os.fspath(out)
+    base = out[:-4] if out.lower().endswith(".npy") else out
+    return base + ".npy", base + ".json", base + ".errors.jsonl"
+
+
+def _load(path, what):
+    if not os.path.exists(path):
+        raise InputError(f"{path}: no such file")
+    if os.path.isdir(path):
+        raise InputError(f"{path}: is a directory, not a file")
+    try:
+        arr = np.load(path, mmap_mode="r", allow_pickle=False)
+    except ValueError as exc:
+        if "pickle" in str(exc).lower() or "object" in str(exc).lower():
+            raise InputError(
+                f"{path}: holds Python objects (for example matrices of different sizes); "
+                f"{what} must be one integer array") from None
+        raise InputError(f"{path}: not a readable .npy file ({_first_line(exc)})") from None
+    except (OSError, EOFError) as exc:
+        raise InputError(f"{path}: not a readable .npy file ({_first_line(exc)})") from None
+    if not isinstance(arr, np.ndarray):
+        raise InputError(f"{path}: holds several arrays; {what} must be one array")
+    if arr.dtype.kind not in "iub":
+        raise InputError(f"{path}: has dtype {arr.dtype}; {what} needs an integer dtype")
+    return arr
+
+
+def _first_line(exc):
+    lines = str(exc).strip().splitlines()
+    return lines[0] if lines else type(exc).__name__
+
+
+class _Rows:
+    """Reads rows start .. stop-1 of a ``.npy`` array with ``pread`` (C order), so the
+    process holds one chunk at a time however large the file is; a Fortran-order array
+    is sliced through its memory map instead."""
+
+    def __init__(self, path, mm):
+        self.path = path
+        self.shape = tuple(int(x) for x in mm.shape)
+        self.dtype = mm.dtype
+        self.offset = int(mm.offset)
+        self.fortran = bool(mm.flags.f_contiguous and not mm.flags.c_contiguous)
+        self.mm = mm if self.fortran else None
+        self.row = int(np.prod(self.shape[1:], dtype=np.int64))
+
+    def read(self, start, stop):
+        if self.fortran:
+            return np.ascontiguousarray(self.mm[start:stop])
+        count = (stop - start) * self.row
+        nbytes = count * self.dtype.itemsize
+        fd = os.open(self.path, os.O_RDONLY)
+        try:
+            buf = bytearray(nbytes)
+            view = memoryview(buf)
+            got = 0
+            while got < nbytes:
+                n = os.preadv(fd, [view[got:]], self.offset + start * self.row
+                              * self.dtype.itemsize + got)
+                if n == 0:
+                    raise InputError(f"{self.path}: ends early (truncated .npy file)")
+                got += n
+        finally:
+            os.close(fd)
+        return np.frombuffer(buf, dtype=self.dtype, count=count).reshape(
+            (stop - start,) + self.shape[1:])
+
+
+class BulkInput:
+    """An opened ``.npy`` stack and its sidecar (arrays memory-mapped for their
+    headers, read a chunk at a time)."""
+
+    def __init__(self, path, stack, sidecar, F, op, rhs, exponent, rhs_path=None):
+        self.path = path
+        self.rhs_path = rhs_path
+        self.stack = stack
+        self.sidecar = sidecar
+        self.F = F
+        self.op = op
+        self.rhs = rhs
+        self.exponent = exponent
+
+    @property
+    def count(self):
+        return int(self.stack.shape[0])
+
+    def task(self, start, stop):
+        """Arguments of :func:`process_stack` for matrices start .. stop-1."""
+        if not hasattr(self, "_rows"):
+            self._rows = _Rows(self.path, self.stack)
+            self._rhs_rows = None if self.rhs is None else _Rows(self.rhs_path, self.rhs)
+        rhs = None if self.rhs is None else self._rhs_rows.read(start, stop)
+        return (self.sidecar["field"], self.sidecar.get("modulus"), self.op.name,
+                self.exponent, self._rows.read(start, stop), rhs, start)
+
+
+def open_bulk(path):
+    """Open ``X.npy`` with its sidecar ``X.json`` and check that they agree.
+
+    Raises
+    ------
+    InputError
+        Missing or unreadable files, an array that is not ``(N, m, n)`` integers, a
+        sidecar that names no field or op, an op without a fixed-shape result, or any
+        stated count, shape, dtype that does not match the array.
+    """
+    path = os.fspath(path)
+    base = path[:-4] if path.lower().endswith(".npy") else path
+    side_path = base + ".json"
+    stack = _load(path, "a stack of matrices")
+    if not os.path.exists(side_path):
+        raise InputError(f"{path}: needs a sidecar {side_path} naming at least 'field' "
+                         "and 'op'")
+    try:
+        with open(side_path, "rb") as fh:
+            sidecar = json.loads(fh.read())
+    except (OSError, ValueError) as exc:
+        raise InputError(f"{side_path}: not a readable JSON file ({_first_line(exc)})") from None
+    if not isinstance(sidecar, dict):
+        raise InputError(f"{side_path}: must hold one JSON object")
+    mismatch = f"sidecar {side_path} does not match {path}"
+    for key in ("field", "op"):
+        if key not in sidecar:
+            raise InputError(f"{side_path}: names no {key!r}")
+    opname = sidecar["op"]
+    if opname not in OPERATIONS:
+        raise InputError(f"{side_path}: unknown op {opname!r} (known: "
+                         f"{', '.join(sorted(OPERATIONS))})")
+    if opname not in BULK_OPERATIONS:
+        raise InputError(f"{side_path}: op {opname!r} has no fixed-shape result, so it is "
+                         f"not available for .npy input (use JSON Lines); .npy ops: "
+                         f"{', '.join(BULK_OPERATIONS)}")
+    op = OPERATIONS[opname]
+    try:
+        F = field_of(sidecar["field"], sidecar.get("modulus"))
+    except InputError as exc:
+        raise InputError(f"{side_path}: {exc}") from None
+    if stack.ndim != 3:
+        raise InputError(f"{path}: has shape {tuple(stack.shape)}; a stack of matrices "
+                         "(N, m, n) is needed")
+    N, m, n = (int(x) for x in stack.shape)
+    if "count" in sidecar and sidecar["count"] != N:
+        raise InputError(f"{mismatch}: count {sidecar['count']!r} in the sidecar, {N} "
+                         "matrices in the array")
+    if "shape" in sidecar and list(sidecar["shape"] or []) != [m, n]:
+        raise InputError(f"{mismatch}: shape {sidecar['shape']!r} in the sidecar, "
+                         f"matrices of {m} x {n} in the array")
+    if "dtype" in sidecar and str(sidecar["dtype"]) != str(stack.dtype):
+        raise InputError(f"{mismatch}: dtype {sidecar['dtype']!r} in the sidecar, "
+                         f"{stack.dtype} in the array")
+    if m == 0 or n == 0:
+        raise InputError(f"{path}: holds empty matrices (shape {tuple(stack.shape)})")
+    if op.square and m != n:
+        raise InputError(f"{path}: op {opname!r} needs square matrices, the stack holds "
+                         f"{m} x {n}")
+    rhs = rhs_path = None
+    if opname == "solve":
+        if "rhs" not in sidecar:
+            raise InputError(f"{side_path}: op 'solve' needs 'rhs', the file of "
+                             "right-hand sides (N, m)")
+        rhs_path = os.path.join(os.path.dirname(os.path.abspath(side_path)),
+                                str(sidecar["rhs"]))
+        rhs = _load(rhs_path, "the right-hand sides")
+        if rhs.shape != (N, m):
+            raise InputError(f"{rhs_path}: has shape {tuple(rhs.shape)}; the right-hand "
+                             f"sides of {path} need ({N}, {m})")
+    exponent = None
+    if opname == "power":
+        if "exponent" not in sidecar:
+            raise InputError(f"{side_path}: op 'power' needs 'exponent'")
+        exponent = sidecar["exponent"]
+        if isinstance(exponent, bool) or not isinstance(exponent, (int, str)):
+            raise InputError(f"{side_path}: exponent must be an integer or text such as "
+                             "'2^100'")
+        if isinstance(exponent, str):
+            from ...io.spec import parse_int_expr
+            try:
+                exponent = parse_int_expr(exponent, "exponent")
+            except InputError as exc:
+                raise InputError(f"{side_path}: {exc}") from None
+    return BulkInput(path, stack, sidecar, F, op, rhs, exponent, rhs_path=rhs_path)
+
+
+def element_dtype(F):
+    """The smallest unsigned dtype holding every element of F."""
+    for dt in (np.uint8, np.uint16, np.uint32):
+        if F.size <= 1 + int(np.iinfo(dt).max):
+            return np.dtype(dt)
+    return np.dtype(np.uint64)
+
+
+def result_layout(bulk):
+    """(shape, dtype, description) of the result array for a bulk input."""
+    F = bulk.F
+    N, m, n = (int(x) for x in bulk.stack.shape)
+    kind = bulk.op.bulk_shape
+    el = element_dtype(F)
+    if kind == "matrix":
+        return (N, n, n), el, "one matrix per input matrix"
+    if kind == "scalar":
+        if bulk.op.name == "rank":
+            return (N,), np.dtype(np.int64), "the rank of each matrix"
+        return (N,), el, f"the {bulk.op.name} of each matrix"
+    if kind == "vector":
+        return (N, n), el, ("a particular solution of each system (free unknowns 0; "
+                            "the nullspace is not stored: use JSON Lines for it)")
+    if kind == "poly":
+        return (N, n + 1), el, "charpoly coefficients, highest degree first"
+    raise AssertionError(kind)  # pragma: no cover
+
+
+class StackResult:
+    """Output of one bulk chunk: the result rows and the error lines."""
+
+    __slots__ = ("start", "values", "errors", "failed", "kinds")
+
+    def __init__(self, start, values, errors, failed, kinds):
+        self.start = start
+        self.values = values
+        self.errors = errors
+        self.failed = failed
+        self.kinds = kinds
+
+    def __reduce__(self):
+        return (StackResult, (self.start, self.values, self.errors, self.failed, self.kinds))
+
+
+def process_stack(spec, modulus, opname, exponent, stack, rhs, start, threads=None):
+    """Run one chunk of a bulk input: matrices ``start .. start + len(stack) - 1``.
+
+    Returns
+    -------
+    StackResult
+        ``values``: the results (zeros where a matrix failed), ``errors``: bytes of
+        JSON Lines ``{"index", "op", "error"}``.
+    """
+    from ...linalg import batched
+    from ...linalg.eliminate import left_certificate
+    from .ops import run_group
+    limit_threads(threads)
+    F = field_of(spec, modulus)
+    op = OPERATIONS[opname]
+    K, m, n = stack.shape
+    bulk = BulkInput(None, stack, None, F, op, None, exponent)
+    shape, dtype, _ = result_layout(bulk)
+    values = np.zeros(shape, dtype=dtype)
+    errors = {}
+    bad = _bad_entries(stack, F.size, (1, 2))
+    if rhs is not None:
+        bad |= _bad_entries(rhs, F.size, (1,))
+    for k in np.flatnonzero(bad):
+        try:
+            F.asarray(stack[k], name="matrix")
+            if rhs is not None:
+                F.asarray(rhs[k], name="rhs", ndim=1)
+        except InputError as exc:
+            errors[int(k)] = exc
+    good = np.flatnonzero(~bad)
+    if len(good):
+        U = np.ascontiguousarray(stack[good], dtype=np.uint64)
+        if opname == "inv":
+            r = batched.inv(F, U)
+            values[good] = r.inverse
+            for j in np.flatnonzero(r.singular):
+                errors[int(good[j])] = batched.singular_error(F, r, j)
+        elif opname == "det":
+            values[good] = batched.det(F, U)
+        elif opname == "rank":
+            values[good] = batched.rank(F, U)
+        elif opname == "solve":
+            V = np.ascontiguousarray(rhs[good], dtype=np.uint64)
+            s = batched.solve(F, U, V)
+            values[good] = s.particular
+            for j in np.flatnonzero(~s.consistent):
+                y = left_certificate(F, U[j], V[j]) if F.is_field else None
+                errors[int(good[j])] = InconsistentSystemError(
+                    "the system has no solution" + (
+                        "" if y is None else
+                        f": y A = 0 and y b != 0 for y = {[int(t) for t in y]}"),
+                    left_vector=y)
+        else:
+            recs = [{"exponent": exponent}] * len(good)
+            items, failures = run_group(F, op, U, recs)
+            for j, item in enumerate(items):
+                if j in failures:
+                    errors[int(good[j])] = failures[j]
+                else:
+                    values[good[j]] = np.array(item, dtype=object).astype(dtype)
+    lines = []
+    kinds = {}
+    for k in sorted(errors):
+        exc = errors[k]
+        obj = error_object(exc)
+        kinds[obj["kind"]] = kinds.get(obj["kind"], 0) + 1
+        values[k] = 0
+        lines.append(json.dumps({"index": start + k, "op": opname, "error": obj}) + "\n")
+    return StackResult(start, values, "".join(lines).encode("utf-8"), len(errors), kinds)
+
+
+def _bad_entries(arr, size, axes):
+    if arr.dtype.kind == "b":
+        return np.zeros(arr.shape[0], dtype=bool)
+    if arr.dtype.kind == "i":
+        bad = arr < 0
+        if size <= np.iinfo(arr.dtype).max:
+            bad |= arr >= size
+    else:
+        if size <= np.iinfo(arr.dtype).max:
+            bad = arr >= size
+        else:
+            return np.zeros(arr.shape[0], dtype=bool)
+    return bad.any(axis=axes)
