@@ -17,6 +17,22 @@ from .io.spec import field
 
 __version__ = "0.1.0"
 
+
+def _find_cli_in_source_checkout():
+    # Installed, the command line lives in gfla/cli. In a source checkout it is the
+    # top-level folder cli/ beside gfla/; let ``import gfla.cli`` find it there too, so
+    # that code run from the checkout (``python -c``, ``python -m pytest``) works.
+    import os
+    here = os.path.dirname(__file__)
+    root = os.path.dirname(here)
+    if (not os.path.isdir(os.path.join(here, "cli"))
+            and os.path.isfile(os.path.join(root, "cli", "__init__.py"))
+            and root not in __path__):
+        __path__.append(root)
+
+
+_find_cli_in_source_checkout()
+
 __all__ = ["field", "GflaError", "InputError", "MathError", "SingularMatrixError",
            "NotAUnitError", "InconsistentSystemError", "MethodNotApplicableError",
            "OrderUnavailableError", "__version__"]
