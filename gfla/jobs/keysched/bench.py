@@ -16,7 +16,6 @@ Every figure is the median of a few runs; the first run, which may compile kerne
 reported as warm-up. Nothing is asserted.
 """
 
-import statistics
 import time
 
 import numpy as np
@@ -78,15 +77,8 @@ def word_schedule_spec(words, width, rounds, seed=2024, lfsr=False, name=None,
 
 
 def _median(fn, reps):
-    t0 = time.perf_counter()
-    fn()
-    warm = time.perf_counter() - t0
-    times = []
-    for _ in range(reps):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return statistics.median(times), warm
+    from ...bench import timed
+    return timed(fn, reps)
 
 
 def _row(operation, n, seconds, warm, target, note=""):
