@@ -25,7 +25,7 @@ def batch():
     processes or a Dask cluster.
 
     \b
-    Example:
+    Examples:
       printf '%s\\n' '{"id": "a", "field": "GF(2^8)", "modulus": "0x11b", "op": "inv", "matrix": [[2, 3], [1, 1]]}' > records.jsonl
       gfla batch run records.jsonl --out results.jsonl
     """
