@@ -384,3 +384,77 @@ def test_rank_batch(count, m, n):
     # galois: rank over GF(2), on a sample of the stack
     for s in range(0, count, max(1, count // 5)):
         assert ranks[s] == np.linalg.matrix_rank(galois.GF2(stack[s]))
+
+
+# ------------------------------------------- block-elimination base kernels
+
+@pytest.mark.parametrize("m, k, n", [(1100, 130, 70), (300, 64, 2100), (5, 3, 1)])
+def test_matmul_parallel_bands(m, k, n):
+    # reference product mod 2; bands of rows on 1, 2 and 3 threads' worth of chunks
+    rng = np.random.default_rng(m + k + n)
+    A = random_bits(rng, m, k)
+    B = random_bits(rng, k, n)
+    for chunks in (1, 2, 3):
+        C = np.empty((m, binary.word_count(n)), np.uint64)
+        binary.matmul_parallel(binary.pack(A), binary.pack(B), C, chunks)
+        assert np.array_equal(binary.unpack(C, n), reference_matmul(A, B))
+        assert_padding_zero(C, n)
+
+
+@pytest.mark.parametrize("m, nbits", [(70, 64), (130, 40), (3, 64), (64, 1)])
+def test_ple_base_on_a_block(m, nbits):
+    # The block sits at row 5, word 1 of a larger matrix: columns outside it and rows
+    # outside it are untouched; P L E of the block equals the block (reference product
+    # mod 2), E's pivots are the reference rref's pivots (column rank profile).
+    rng = np.random.default_rng(m * nbits)
+    block = random_of_rank(rng, m, nbits, max(1, min(m, nbits) // 2)) if m > 4 \
+        else random_bits(rng, m, nbits)
+    root = random_bits(rng, m + 9, 64 * 3)
+    root[5:5 + m, 64:64 + nbits] = block
+    if nbits < 64:
+        root[5:5 + m, 64 + nbits:128] = 0  # a block ends on a word boundary or at the end
+    P = binary.pack(root)
+    before = P.copy()
+    perm = np.empty(m, np.int64)
+    piv = np.empty(min(m, nbits), np.int64)
+    r = binary.ple_base(P, 5, 1, m, nbits, perm, piv)
+    assert list(piv[:r]) == reference_rref(block)[1]
+    rows = np.s_[5:5 + m]
+    assert np.array_equal(np.delete(P, rows, axis=0), np.delete(before, rows, axis=0))
+    assert np.array_equal(P[5:5 + m, [0, 2]], before[5:5 + m, [0, 2]])
+    out = binary.unpack(P[5:5 + m, 1:2], nbits)
+    E = np.zeros((r, nbits), np.uint8)
+    L = np.zeros((m, r), np.uint8)
+    for i in range(r):
+        E[i, piv[i]:] = out[i, piv[i]:]
+        L[i, i] = 1
+    for k in range(r):
+        L[k + 1:, k] = out[k + 1:, piv[k]]
+    assert np.array_equal(reference_matmul(L, E), block[perm])
+
+
+def test_triangular_solves_and_column_moves():
+    # L^-1 B and U^-1 B checked by multiplying back (reference product mod 2);
+    # gather then scatter of scattered columns restores them.
+    rng = np.random.default_rng(11)
+    r, w = 90, 150
+    L = np.tril(random_bits(rng, r, r), -1) | np.eye(r, dtype=np.uint8)
+    U = np.triu(random_bits(rng, r, r), 1) | np.eye(r, dtype=np.uint8)
+    B = random_bits(rng, r, w)
+    for T, solve in ((L, binary.trsm_lower_unit), (U, binary.trsm_upper_unit)):
+        junk = T ^ (random_bits(rng, r, r) & (np.triu(np.ones((r, r), np.uint8), 1)
+                                              if solve is binary.trsm_lower_unit
+                                              else np.tril(np.ones((r, r), np.uint8), -1)))
+        X = binary.pack(B)
+        solve(binary.pack(junk), 0, 0, r, X, 0, 0, X.shape[1])
+        assert np.array_equal(reference_matmul(T, binary.unpack(X, w)), B)
+    cols = np.array(sorted(rng.choice(w, 77, replace=False)), np.int64)
+    P = binary.pack(B)
+    G = np.empty((r, binary.word_count(len(cols))), np.uint64)
+    binary.gather_columns(P, 0, r, cols, G)
+    assert np.array_equal(binary.unpack(G, len(cols)), B[:, cols])
+    Z = np.zeros_like(P)
+    binary.scatter_columns(G, cols, Z, 0)
+    expected = np.zeros_like(B)
+    expected[:, cols] = B[:, cols]
+    assert np.array_equal(binary.unpack(Z, w), expected)

@@ -225,8 +225,25 @@ class Field:
         from ..linalg.multiply import dense_matmul
         return dense_matmul(self, A, B)
 
+    # Gauss-Jordan (``kernels.dense``) is the reference and the path for small
+    # matrices; from ``blocked.BLOCKED_MIN`` rows and columns the block-recursive PLE
+    # of ``linalg.blocked`` takes over (its cost is that of a few products).
     def _rref(self, M, ncols_pivot=None):
-        """Gauss-Jordan in place on a uint64 matrix; returns (pivots, det)."""
+        """Reduced row echelon form in place on a uint64 matrix; returns (pivots, det)
+        with det the determinant of the leading square block when the rank equals the
+        number of rows and the pivots are columns 0..rank-1 (else 0 or a partial
+        product: callers only read it in that case)."""
+        from ..linalg import blocked
+        if ncols_pivot is None:
+            ncols_pivot = M.shape[1]
+        if ncols_pivot == M.shape[1] and min(M.shape) >= blocked.BLOCKED_MIN:
+            R, piv, det = blocked.rref(self, M)
+            M[...] = R
+            return piv, det
+        return self._rref_gauss_jordan(M, ncols_pivot)
+
+    def _rref_gauss_jordan(self, M, ncols_pivot=None):
+        """The reference: Gauss-Jordan in place (``kernels.dense.rref``)."""
         from ..kernels import dense
         if ncols_pivot is None:
             ncols_pivot = M.shape[1]
@@ -234,12 +251,41 @@ class Field:
         return piv, int(det)
 
     def _rank(self, U):
-        piv, _ = self._rref(U.copy())
+        from ..linalg import blocked
+        if min(U.shape) >= blocked.BLOCKED_MIN:
+            return blocked.rank_auto(self, U)
+        piv, _ = self._rref_gauss_jordan(U.copy())
         return len(piv)
 
     def _det(self, U):
-        piv, det = self._rref(U.copy())
+        from ..linalg import blocked
+        if U.shape[0] >= blocked.BLOCKED_MIN:
+            return blocked.det_auto(self, U)
+        return self._det_gauss_jordan(U)
+
+    def _det_gauss_jordan(self, U):
+        """The reference: Gauss-Jordan (``kernels.dense.rref``)."""
+        piv, det = self._rref_gauss_jordan(U.copy())
         return det if len(piv) == U.shape[0] else 0
+
+    def _inverse(self, U):
+        """Inverse of a square uint64 matrix, or None when it is singular."""
+        from ..linalg import blocked
+        n = U.shape[0]
+        if n >= blocked.BLOCKED_MIN:
+            return blocked.inverse_auto(self, U)
+        return self._inverse_gauss_jordan(U)
+
+    def _inverse_gauss_jordan(self, U):
+        """The reference: Gauss-Jordan on [A | I]."""
+        n = U.shape[0]
+        M = np.zeros((n, 2 * n), dtype=np.uint64)
+        M[:, :n] = U
+        M[:, n:] = self._identity(n)
+        piv, _ = self._rref_gauss_jordan(M, n)
+        if len(piv) < n:
+            return None
+        return M[:, n:].copy()
 
     def _hessenberg(self, U):
         from ..kernels import dense

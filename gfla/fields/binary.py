@@ -52,13 +52,23 @@ class BinaryField(Field):
 
     def _matmul(self, A, B):
         from ..kernels import binary
-        m, k = A.shape
-        n = B.shape[1]
-        C = np.zeros((m, binary.word_count(n)), dtype=np.uint64)
-        binary.matmul(self._pack(A), self._pack(B), C)
-        return binary.unpack(C, n)
+        from ..linalg.multiply import binary_product
+        return binary.unpack(binary_product(self._pack(A), self._pack(B)), B.shape[1])
 
+    # M4RI Gauss-Jordan for moderate sizes and as the reference; the block-recursive
+    # PLE (``linalg.blocked``, products by M4RM and Strassen) from
+    # ``blocked.BINARY_BLOCKED_MIN`` on.
     def _rref(self, M, ncols_pivot=None):
+        from ..linalg import blocked
+        if ncols_pivot is None:
+            ncols_pivot = M.shape[1]
+        if ncols_pivot == M.shape[1] and min(M.shape) >= blocked.BINARY_BLOCKED_MIN:
+            R, piv, _ = blocked.rref(self, M)
+            M[...] = R
+            return piv, 1
+        return self._rref_gauss_jordan(M, ncols_pivot)
+
+    def _rref_gauss_jordan(self, M, ncols_pivot=None):
         from ..kernels import binary
         if ncols_pivot is None:
             ncols_pivot = M.shape[1]
@@ -69,12 +79,21 @@ class BinaryField(Field):
 
     def _rank(self, U):
         from ..kernels import binary
+        from ..linalg import blocked
+        if min(U.shape) >= blocked.BINARY_BLOCKED_MIN:
+            return blocked.rank(self, U)
         return int(binary.rank(self._pack(U), U.shape[1]))
 
     def _det(self, U):
         return 1 if self._rank(U) == U.shape[0] else 0
 
     def _inverse(self, U):
+        from ..linalg import blocked
+        if U.shape[0] >= blocked.BINARY_BLOCKED_MIN:
+            return blocked.inverse(self, U)
+        return self._inverse_gauss_jordan(U)
+
+    def _inverse_gauss_jordan(self, U):
         from ..kernels import binary
         n = U.shape[0]
         out = np.zeros((n, binary.word_count(n)), dtype=np.uint64)

@@ -95,6 +95,13 @@ class ExtensionField(Field):
             _CONTEXT_CACHE[key] = (g, kx.build_context(k, modulus, g))
         self.generator, self._ctx = _CONTEXT_CACHE[key]
 
+    def _validate_entries(self, A, name, ndim):
+        from .prime import fast_entries
+        fast = fast_entries(A, ndim, self.size)
+        if fast is not None:
+            return fast
+        return super()._validate_entries(A, name, ndim)
+
     def info(self):
         return {"field": self.spec, "order": self.size, "characteristic": 2,
                 "degree": self.k, "modulus": self.modulus,

@@ -36,6 +36,39 @@ def is_prime(n):
     return True
 
 
+def fast_entries(A, ndim, size):
+    """Validated uint64 copy of a C-contiguous, writable int64 or uint64 array whose
+    entries all lie in [0, size), in one compiled pass; None when the fast path does
+    not apply or an entry is out of range (the general validation then runs and
+    words the error)."""
+    if (not isinstance(A, np.ndarray) or A.dtype not in (np.int64, np.uint64)
+            or not A.flags.c_contiguous or not A.flags.writeable or A.size == 0
+            or (ndim is not None and A.ndim != ndim) or size >= 1 << 64):
+        return None
+    from ..kernels import modular
+    out = np.empty(A.shape, dtype=np.uint64)
+    kernel = modular.range_copy_int64 if A.dtype == np.int64 else modular.range_copy_uint64
+    if kernel(A.reshape(-1), np.uint64(size), out.reshape(-1)) >= 0:
+        return None
+    return out
+
+
+def _float_operand(A, bound):
+    """float64 copy of a C-contiguous writable 2-D int64/uint64 array with entries in
+    [0, bound), validated in the same pass; None when that does not apply."""
+    if (not isinstance(A, np.ndarray) or A.dtype not in (np.int64, np.uint64)
+            or A.ndim != 2 or A.size == 0 or not A.flags.c_contiguous
+            or not A.flags.writeable):
+        return None
+    from ..kernels import modular
+    out = np.empty(A.shape)
+    kernel = (modular.range_to_float_int64 if A.dtype == np.int64
+              else modular.range_to_float_uint64)
+    if kernel(A.reshape(-1), bound, out.reshape(-1)) >= 0:
+        return None
+    return out
+
+
 def _smallest_factor(n):
     import galois
     return int(galois.factors(n)[0][0])
@@ -76,6 +109,38 @@ class PrimeField(Field):
         F.dtype = np.dtype(np.uint64)
         F._ctx = np.array([0, p % (1 << 64), 0, 0], dtype=np.uint64)
         return F
+
+    def matmul(self, A, B):
+        """Matrix product A B.
+
+        When both operands are C-contiguous int64 (or uint64) matrices and the float64
+        product is exact without chunking (k (p-1)^2 < 2^53), they are validated and
+        converted to float64 in one pass each and the reduced product is written
+        straight into the int64 result: the same arithmetic as the general path
+        (``linalg.multiply``) without its uint64 intermediates. Anything else, errors
+        included, goes the general way.
+        """
+        from ..linalg import multiply
+        if (isinstance(A, np.ndarray) and isinstance(B, np.ndarray) and A.ndim == 2
+                and B.ndim == 2 and A.shape[1] == B.shape[0]):
+            L, _, kc = multiply.limb_plan((self.p - 1).bit_length(), A.shape[1])
+            if L == 1 and kc >= A.shape[1]:
+                Af = _float_operand(A, self.p)
+                Bf = _float_operand(B, self.p) if Af is not None else None
+                if Bf is not None:
+                    from ..kernels import modular
+                    C = multiply.int_product(Af, Bf, self.p - 1, self.p - 1)
+                    del Af, Bf
+                    out = np.empty(C.shape, dtype=np.int64)
+                    modular.reduce_float_to_int64(C, float(self.p), out)
+                    return out
+        return super().matmul(A, B)
+
+    def _validate_entries(self, A, name, ndim):
+        fast = fast_entries(A, ndim, self.size)
+        if fast is not None:
+            return fast
+        return super()._validate_entries(A, name, ndim)
 
     def info(self):
         import galois

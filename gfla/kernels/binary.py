@@ -21,14 +21,18 @@ Functions
 ---------
 pack, unpack
     0/1 ``uint8`` matrices to and from packed rows.
-matmul, matmul_naive
-    Product by the method of Four Russians (M4RM), and by plain word XOR.
+matmul, matmul_parallel, matmul_naive
+    Product by the method of Four Russians (M4RM), the same over bands of rows
+    in parallel, and by plain word XOR.
 matvec
     Matrix times packed vector, packed result.
 rref, rank, inverse, nullspace
     Gauss-Jordan elimination with Four Russians tables (M4RI).
 rank_batch
     Ranks of a stack of matrices, in parallel over the stack.
+ple_base, trsm_lower_unit, trsm_upper_unit, gather_columns, scatter_columns
+    Base cases of the block-recursive elimination (``gfla.linalg.blocked``), in
+    place on a block of a root matrix given by its row and word offsets.
 """
 
 import numpy as np
@@ -39,6 +43,7 @@ __all__ = [
     "pack",
     "unpack",
     "matmul",
+    "matmul_parallel",
     "matmul_naive",
     "matvec",
     "rref",
@@ -46,6 +51,11 @@ __all__ = [
     "inverse",
     "nullspace",
     "rank_batch",
+    "ple_base",
+    "trsm_lower_unit",
+    "trsm_upper_unit",
+    "gather_columns",
+    "scatter_columns",
 ]
 
 _ONE = np.uint64(1)
@@ -54,9 +64,13 @@ _BYTE = np.uint64(0xFF)
 
 # Words of a column block of C covered by one set of M4RM tables: 8 tables x
 # 256 entries x 32 words x 8 bytes = 512 KiB, which stays in a 2 MiB L2 cache.
-# Measured on n = 1000..8192: 32 beats 8 and 16 by 10-15 % at n >= 4096, and
-# 64 or extra row blocking gained nothing measurable.
+# Measured on n = 1000..8192: 32 beats 8 and 16 by 10-15 % at n >= 4096.
 _MATMUL_BLOCK_WORDS = 32
+# Rows of C swept per set of tables: 1024 rows x 32 words = 256 KiB, so the block
+# of C stays in cache beside the tables. Without it the 8192 x 8192 product took
+# 2.0-2.3 s against 0.08 s at 4096 (a 25x jump for 8x the work); with 2048-row
+# blocks 0.95 s.
+_MATMUL_BLOCK_ROWS = 1024
 
 # Elimination: each table covers at most 8 columns (2^8 sums of pivot rows),
 # and one step applies 4 tables (32 columns) in a single pass over each row,
@@ -178,6 +192,71 @@ def _gray_steps(nbits):
 
 
 @njit(cache=True)
+def _m4rm_rows(A, B, C, r0, r1):
+    """Rows r0..r1-1 of C = A B by M4RM (see :func:`matmul`)."""
+    m, wk = A.shape
+    k, wn = B.shape
+    for i in range(r0, r1):
+        for j in range(wn):
+            C[i, j] = 0
+    if r1 <= r0 or k == 0 or wn == 0:
+        return
+    code, previous, row = _gray_steps(8)
+    block = min(wn, _MATMUL_BLOCK_WORDS)
+    T = np.zeros((8, 256, block), np.uint64)
+    for rb in range(r0, r1, _MATMUL_BLOCK_ROWS):
+        re = min(r1, rb + _MATMUL_BLOCK_ROWS)
+        for c0 in range(0, wn, block):
+            cb = min(block, wn - c0)
+            for kw in range(wk):
+                r_base = 64 * kw
+                ntab = min(8, (k - r_base + 7) // 8)
+                for t in range(ntab):
+                    rr = r_base + 8 * t
+                    nrows = min(8, k - rr)
+                    for j in range(cb):
+                        T[t, 0, j] = 0
+                    for s in range(1, 256):
+                        g = code[s]
+                        gp = previous[s]
+                        b = row[s]
+                        if b < nrows:
+                            for j in range(cb):
+                                T[t, g, j] = T[t, gp, j] ^ B[rr + b, c0 + j]
+                        else:
+                            for j in range(cb):
+                                T[t, g, j] = T[t, gp, j]
+                if ntab == 8:
+                    for i in range(rb, re):
+                        a = A[i, kw]
+                        if a == 0:
+                            continue
+                        i0 = np.intp(a & _BYTE)
+                        i1 = np.intp((a >> np.uint64(8)) & _BYTE)
+                        i2 = np.intp((a >> np.uint64(16)) & _BYTE)
+                        i3 = np.intp((a >> np.uint64(24)) & _BYTE)
+                        i4 = np.intp((a >> np.uint64(32)) & _BYTE)
+                        i5 = np.intp((a >> np.uint64(40)) & _BYTE)
+                        i6 = np.intp((a >> np.uint64(48)) & _BYTE)
+                        i7 = np.intp((a >> np.uint64(56)) & _BYTE)
+                        for j in range(cb):
+                            C[i, c0 + j] ^= (
+                                T[0, i0, j] ^ T[1, i1, j] ^ T[2, i2, j] ^ T[3, i3, j]
+                                ^ T[4, i4, j] ^ T[5, i5, j] ^ T[6, i6, j] ^ T[7, i7, j]
+                            )
+                else:
+                    for i in range(rb, re):
+                        a = A[i, kw]
+                        if a == 0:
+                            continue
+                        for t in range(ntab):
+                            idx = np.intp((a >> np.uint64(8 * t)) & _BYTE)
+                            if idx != 0:
+                                for j in range(cb):
+                                    C[i, c0 + j] ^= T[t, idx, j]
+
+
+@njit(cache=True)
 def matmul(A, B, C):
     """Product of packed GF(2) matrices by the method of Four Russians.
 
@@ -202,11 +281,12 @@ def matmul(A, B, C):
     row XOR. Byte ``t`` of a word of a row of ``A`` selects the table entry to
     add. Eight tables (64 rows of ``B``, one word of ``A``) are applied at once
     so each word of ``C`` is loaded and stored once per 64 rows of ``B``, and
-    the columns of ``C`` are processed in blocks so the tables stay in cache.
+    ``C`` is processed in blocks of 32 words by 1024 rows so the tables and the
+    block of ``C`` stay in a core's cache together.
     Cost: ``m k n / 4096`` word updates of ``C`` (each the XOR of 8 table
-    words) plus about ``k n / 2`` word XORs to build the tables. When ``k`` is
-    not a multiple of 8 the last group has fewer rows; the missing rows count
-    as zero (and the matching bits of ``A`` are padding, hence 0).
+    words) plus about ``k n / 2`` word XORs per row block to build the tables.
+    When ``k`` is not a multiple of 8 the last group has fewer rows; the missing
+    rows count as zero (and the matching bits of ``A`` are padding, hence 0).
 
     References
     ----------
@@ -223,60 +303,21 @@ def matmul(A, B, C):
         raise ValueError("`C` must have shape (A.shape[0], B.shape[1]).")
     if wk != (k + 63) // 64:
         raise ValueError("A.shape[1] must be (B.shape[0] + 63) // 64.")
-    C[:, :] = 0
-    if m == 0 or k == 0 or wn == 0:
-        return
-    code, previous, row = _gray_steps(8)
-    block = min(wn, _MATMUL_BLOCK_WORDS)
-    T = np.zeros((8, 256, block), np.uint64)
-    for c0 in range(0, wn, block):
-        cb = min(block, wn - c0)
-        for kw in range(wk):
-            r_base = 64 * kw
-            ntab = min(8, (k - r_base + 7) // 8)
-            for t in range(ntab):
-                r0 = r_base + 8 * t
-                nrows = min(8, k - r0)
-                for j in range(cb):
-                    T[t, 0, j] = 0
-                for s in range(1, 256):
-                    g = code[s]
-                    gp = previous[s]
-                    b = row[s]
-                    if b < nrows:
-                        for j in range(cb):
-                            T[t, g, j] = T[t, gp, j] ^ B[r0 + b, c0 + j]
-                    else:
-                        for j in range(cb):
-                            T[t, g, j] = T[t, gp, j]
-            if ntab == 8:
-                for i in range(m):
-                    a = A[i, kw]
-                    if a == 0:
-                        continue
-                    i0 = np.intp(a & _BYTE)
-                    i1 = np.intp((a >> np.uint64(8)) & _BYTE)
-                    i2 = np.intp((a >> np.uint64(16)) & _BYTE)
-                    i3 = np.intp((a >> np.uint64(24)) & _BYTE)
-                    i4 = np.intp((a >> np.uint64(32)) & _BYTE)
-                    i5 = np.intp((a >> np.uint64(40)) & _BYTE)
-                    i6 = np.intp((a >> np.uint64(48)) & _BYTE)
-                    i7 = np.intp((a >> np.uint64(56)) & _BYTE)
-                    for j in range(cb):
-                        C[i, c0 + j] ^= (
-                            T[0, i0, j] ^ T[1, i1, j] ^ T[2, i2, j] ^ T[3, i3, j]
-                            ^ T[4, i4, j] ^ T[5, i5, j] ^ T[6, i6, j] ^ T[7, i7, j]
-                        )
-            else:
-                for i in range(m):
-                    a = A[i, kw]
-                    if a == 0:
-                        continue
-                    for t in range(ntab):
-                        idx = np.intp((a >> np.uint64(8 * t)) & _BYTE)
-                        if idx != 0:
-                            for j in range(cb):
-                                C[i, c0 + j] ^= T[t, idx, j]
+    _m4rm_rows(A, B, C, 0, m)
+
+
+@njit(cache=True, parallel=True)
+def matmul_parallel(A, B, C, nchunks):
+    """:func:`matmul` with the rows of ``C`` split into ``nchunks`` bands computed in
+    parallel (each band builds its own tables). Same arguments as :func:`matmul`,
+    shapes checked by the caller."""
+    m = A.shape[0]
+    step = (m + nchunks - 1) // nchunks
+    for c in prange(nchunks):
+        r0 = c * step
+        r1 = min(m, r0 + step)
+        if r0 < r1:
+            _m4rm_rows(A, B, C, r0, r1)
 
 
 @njit(cache=True)
@@ -761,3 +802,122 @@ def rank_batch(P3, ncols):
             pivots = np.empty(min(m, ncols), np.int64)
             out[s] = _eliminate(P3[s], ncols, False, pivots)
     return out
+
+
+# ----------------------------------------------------- base cases of block elimination
+@njit(cache=True)
+def ple_base(P, r0, w0, m, nbits, perm, pivots):
+    """PLE decomposition in place of a packed block.
+
+    Parameters
+    ----------
+    P : ndarray of uint64, shape (M, W)
+        Root matrix; the block is rows ``r0 .. r0+m-1`` and columns ``64 w0 ..
+        64 w0 + nbits - 1``. Bits of the block's last word beyond ``nbits`` are
+        neither read as pivots nor changed, except by row swaps (which move whole
+        words of the block).
+    r0, w0, m, nbits : int
+        Block position and size.
+    perm : ndarray of int64, shape (m,)
+        Receives the block row now at row i.
+    pivots : ndarray of int64, shape (>= min(m, nbits),)
+        Receives the pivot columns relative to ``64 w0``.
+
+    Returns
+    -------
+    int
+        The rank r. Rows 0..r-1 of the block hold E (row echelon form) and the
+        entries of L below each pivot are left in place: a pivot column keeps its
+        bits below the pivot (they are L's multipliers), only columns to the right
+        of the pivot are cleared.
+
+    References
+    ----------
+    .. [1] C.-P. Jeannerod, C. Pernet, A. Storjohann, "Rank-profile revealing
+       Gaussian elimination and the CUP matrix decomposition", J. Symbolic
+       Computation 56, 2013.
+    """
+    wb = (nbits + 63) // 64
+    for i in range(m):
+        perm[i] = i
+    r = 0
+    for c in range(nbits):
+        if r == m:
+            break
+        word = w0 + (c >> 6)
+        bit = np.uint64(c & 63)
+        hit = -1
+        for i in range(r, m):
+            if (P[r0 + i, word] >> bit) & _ONE:
+                hit = i
+                break
+        if hit < 0:
+            continue
+        if hit != r:
+            for q in range(w0, w0 + wb):
+                t = P[r0 + hit, q]
+                P[r0 + hit, q] = P[r0 + r, q]
+                P[r0 + r, q] = t
+            t2 = perm[hit]
+            perm[hit] = perm[r]
+            perm[r] = t2
+        above = ~((_ONE << bit) | ((_ONE << bit) - _ONE))
+        head = P[r0 + r, word] & above
+        for i in range(r + 1, m):
+            if (P[r0 + i, word] >> bit) & _ONE:
+                P[r0 + i, word] ^= head
+                for q in range(word + 1, w0 + wb):
+                    P[r0 + i, q] ^= P[r0 + r, q]
+        pivots[r] = c
+        r += 1
+    return r
+
+
+@njit(cache=True)
+def trsm_lower_unit(L, lr0, lw0, r, B, br0, bw0, wb):
+    """B[br0:br0+r, words bw0:bw0+wb] := L^-1 B over GF(2), with L the unit lower
+    triangular r x r block of packed ``L`` at row lr0, columns from ``64 lw0`` (bits
+    on and above its diagonal are not read). Forward substitution by row XORs."""
+    for i in range(1, r):
+        for k in range(i):
+            if (L[lr0 + i, lw0 + (k >> 6)] >> np.uint64(k & 63)) & _ONE:
+                for q in range(bw0, bw0 + wb):
+                    B[br0 + i, q] ^= B[br0 + k, q]
+
+
+@njit(cache=True)
+def trsm_upper_unit(U, ur0, uw0, r, B, br0, bw0, wb):
+    """B[br0:br0+r, words bw0:bw0+wb] := U^-1 B over GF(2), with U the unit upper
+    triangular r x r block of packed ``U`` at row ur0, columns from ``64 uw0`` (bits
+    on and below its diagonal are not read). Back substitution by row XORs."""
+    for i in range(r - 2, -1, -1):
+        for k in range(i + 1, r):
+            if (U[ur0 + i, uw0 + (k >> 6)] >> np.uint64(k & 63)) & _ONE:
+                for q in range(bw0, bw0 + wb):
+                    B[br0 + i, q] ^= B[br0 + k, q]
+
+
+@njit(cache=True)
+def gather_columns(P, r0, m, cols, out):
+    """out[i] = bits ``cols`` of row r0+i of ``P``, packed (``out`` zeroed here)."""
+    wo = out.shape[1]
+    for i in range(m):
+        for q in range(wo):
+            out[i, q] = 0
+        for t in range(cols.shape[0]):
+            c = cols[t]
+            if (P[r0 + i, c >> 6] >> np.uint64(c & 63)) & _ONE:
+                out[i, t >> 6] |= _ONE << np.uint64(t & 63)
+
+
+@njit(cache=True)
+def scatter_columns(X, cols, P, r0):
+    """Bit t of row i of ``X`` goes to column ``cols[t]`` of row r0+i of ``P`` (the
+    target bits are overwritten, other bits kept)."""
+    for i in range(X.shape[0]):
+        for t in range(cols.shape[0]):
+            c = cols[t]
+            q = c >> 6
+            b = np.uint64(c & 63)
+            v = (X[i, t >> 6] >> np.uint64(t & 63)) & _ONE
+            P[r0 + i, q] = (P[r0 + i, q] & ~(_ONE << b)) | (v << b)

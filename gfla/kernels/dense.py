@@ -7,6 +7,12 @@ A context ``ctx`` is a uint64 array whose first word selects the arithmetic:
 
 Matrices are C-contiguous uint64 arrays with entries already reduced. Every kernel is
 compiled once for this single signature and cached on disk.
+
+The base cases of the block-recursive elimination (``ple_base``,
+``trsm_lower_unit``, ``trsm_upper``, ``sub_block``, ``schur_small``, and ``matvec``
+for the Krylov method) work in place on a block ``M[r0:r0+m, c0:c0+n]`` of a
+C-contiguous root matrix given with its offsets, so one compiled version serves every
+block the recursion hands them.
 """
 
 import numpy as np
@@ -17,7 +23,8 @@ from .modular import addmod, gcd_n, gcdex_mod, invmod, mulmod, negmod, submod
 
 __all__ = ["f_add", "f_sub", "f_mul", "f_neg", "f_inv", "rref", "hessenberg_charpoly",
            "berkowitz_charpoly", "matmul_table", "ew_add", "ew_sub", "ew_mul", "ew_neg",
-           "ew_scale", "ew_inv", "howell_form", "trace"]
+           "ew_scale", "ew_inv", "howell_form", "trace", "ple_base", "trsm_lower_unit",
+           "trsm_upper", "sub_block", "schur_small", "matvec"]
 
 _U0 = np.uint64(0)
 _U1 = np.uint64(1)
@@ -402,3 +409,153 @@ def howell_form(M, used, n):
         pivots[r] = c
         r += 1
     return r, pivots[:r].copy()
+
+
+# ----------------------------------------------------- base cases of block elimination
+@njit(cache=True)
+def _axpy_block(M, dst, src, f, c0, c1, ctx):
+    """M[dst, c0:c1] -= f * M[src, c0:c1] (rows of one matrix)."""
+    if ctx[0] == _EXT:
+        lo = EXP_OFFSET + 2 * np.int64(ctx[2])
+        lf = np.int64(ctx[lo + np.int64(f)]) + EXP_OFFSET
+        for j in range(c0, c1):
+            b = M[src, j]
+            if b != _U0:
+                M[dst, j] ^= ctx[lf + np.int64(ctx[lo + np.int64(b)])]
+    else:
+        n = ctx[1]
+        for j in range(c0, c1):
+            b = M[src, j]
+            if b != _U0:
+                M[dst, j] = submod(M[dst, j], mulmod(f, b, n), n)
+
+
+@njit(cache=True)
+def ple_base(M, r0, c0, m, n, ctx, perm, pivots):
+    """PLE decomposition in place of the block M[r0:r0+m, c0:c0+n] (fields only).
+
+    Gaussian elimination by columns with row swaps inside the block. On return the
+    pivot rows 0..r-1 of the block hold E (row echelon form, pivots not normalised)
+    and, below each pivot, the multipliers of L (unit lower triangular; column k of L
+    is stored in the column of pivot k). ``perm[i]`` is the block row now at row i,
+    ``pivots[:r]`` the pivot columns relative to c0. Returns the rank r.
+
+    References
+    ----------
+    .. [1] C.-P. Jeannerod, C. Pernet, A. Storjohann, "Rank-profile revealing Gaussian
+       elimination and the CUP matrix decomposition", J. Symbolic Computation 56, 2013.
+    """
+    for i in range(m):
+        perm[i] = i
+    r = 0
+    for c in range(n):
+        if r == m:
+            break
+        hit = -1
+        for i in range(r, m):
+            if M[r0 + i, c0 + c] != _U0:
+                hit = i
+                break
+        if hit < 0:
+            continue
+        if hit != r:
+            for j in range(c0, c0 + n):
+                t = M[r0 + hit, j]
+                M[r0 + hit, j] = M[r0 + r, j]
+                M[r0 + r, j] = t
+            t2 = perm[hit]
+            perm[hit] = perm[r]
+            perm[r] = t2
+        inv = f_inv(M[r0 + r, c0 + c], ctx)
+        for i in range(r + 1, m):
+            a = M[r0 + i, c0 + c]
+            if a == _U0:
+                continue
+            f = f_mul(a, inv, ctx)
+            M[r0 + i, c0 + c] = f
+            _axpy_block(M, r0 + i, r0 + r, f, c0 + c + 1, c0 + n, ctx)
+        pivots[r] = c
+        r += 1
+    return r
+
+
+@njit(cache=True)
+def trsm_lower_unit(L, lr0, lc0, r, B, br0, bc0, w, ctx):
+    """B[br0:br0+r, bc0:bc0+w] := L^-1 B, with L the unit lower triangular r x r block
+    of ``L`` at (lr0, lc0); entries on and above its diagonal are not read (forward
+    substitution)."""
+    for i in range(1, r):
+        for k in range(i):
+            f = L[lr0 + i, lc0 + k]
+            if f != _U0:
+                _axpy_block(B, br0 + i, br0 + k, f, bc0, bc0 + w, ctx)
+
+
+@njit(cache=True)
+def trsm_upper(U, ur0, uc0, r, B, br0, bc0, w, ctx):
+    """B[br0:br0+r, bc0:bc0+w] := U^-1 B, with U the upper triangular r x r block of
+    ``U`` at (ur0, uc0), nonzero diagonal; entries below it are not read (back
+    substitution)."""
+    for i in range(r - 1, -1, -1):
+        for k in range(i + 1, r):
+            f = U[ur0 + i, uc0 + k]
+            if f != _U0:
+                _axpy_block(B, br0 + i, br0 + k, f, bc0, bc0 + w, ctx)
+        d = f_inv(U[ur0 + i, uc0 + i], ctx)
+        if d != _U1:
+            for j in range(bc0, bc0 + w):
+                B[br0 + i, j] = f_mul(B[br0 + i, j], d, ctx)
+
+
+@njit(cache=True)
+def sub_block(M, r0, c0, P, ctx):
+    """M[r0:r0+h, c0:c0+w] -= P for P of shape (h, w), entries reduced."""
+    for i in range(P.shape[0]):
+        for j in range(P.shape[1]):
+            M[r0 + i, c0 + j] = f_sub(M[r0 + i, c0 + j], P[i, j], ctx)
+
+
+@njit(cache=True)
+def schur_small(M, r0, c0, X, xr0, xc0, Y, yr0, yc0, h, k, w, ctx):
+    """M[r0:r0+h, c0:c0+w] -= X[xr0:xr0+h, xc0:xc0+k] Y[yr0:yr0+k, yc0:yc0+w]: the
+    Schur update for a small inner dimension, by row operations."""
+    for i in range(h):
+        for t in range(k):
+            f = X[xr0 + i, xc0 + t]
+            if f == _U0:
+                continue
+            if ctx[0] == _EXT:
+                lo = EXP_OFFSET + 2 * np.int64(ctx[2])
+                lf = np.int64(ctx[lo + np.int64(f)]) + EXP_OFFSET
+                for j in range(w):
+                    b = Y[yr0 + t, yc0 + j]
+                    if b != _U0:
+                        M[r0 + i, c0 + j] ^= ctx[lf + np.int64(ctx[lo + np.int64(b)])]
+            else:
+                n = ctx[1]
+                for j in range(w):
+                    b = Y[yr0 + t, yc0 + j]
+                    if b != _U0:
+                        M[r0 + i, c0 + j] = submod(M[r0 + i, c0 + j], mulmod(f, b, n), n)
+
+
+@njit(cache=True)
+def matvec(A, x, ctx, out):
+    """out = A x with the context's arithmetic."""
+    for i in range(A.shape[0]):
+        acc = _U0
+        if ctx[0] == _EXT:
+            lo = EXP_OFFSET + 2 * np.int64(ctx[2])
+            for j in range(A.shape[1]):
+                a = A[i, j]
+                b = x[j]
+                if a != _U0 and b != _U0:
+                    acc ^= ctx[EXP_OFFSET + np.int64(ctx[lo + np.int64(a)])
+                               + np.int64(ctx[lo + np.int64(b)])]
+        else:
+            n = ctx[1]
+            for j in range(A.shape[1]):
+                a = A[i, j]
+                if a != _U0:
+                    acc = addmod(acc, mulmod(a, x[j], n), n)
+        out[i] = acc

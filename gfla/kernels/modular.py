@@ -7,13 +7,33 @@ while n < 2^62, and an exact 128-bit product with shift-and-subtract reduction a
 that, so no product overflows silently anywhere in the range.
 
 Shared by GF(p) (``fields.prime``) and Z/n (``fields.ring``).
+
+The second half of the file serves the products and the block elimination of
+``gfla.linalg``:
+
+* limbs -- ``limb_leaves`` cuts uint64 entries into b-bit limbs and forms the operand
+  sums of a Karatsuba scheme as float64 matrices (each leaf product is then one exact
+  float64 BLAS product), ``limb_combine`` interpolates the leaf products into limb
+  coefficients in exact int64 arithmetic and evaluates them at 2^b modulo n (Horner);
+* the float64 representation of a small prime field (p^2 < 2^52): entries are exact
+  integers held in float64, products of BLAS are reduced by ``reduce_float_to_*``
+  (``range_to_float_*`` validate and convert the public inputs in one pass), and the
+  base cases of the block-recursive elimination (``ple_base_float``,
+  ``trsm_lower_unit_float``, ``trsm_upper_float``, ``sub_block_float``,
+  ``schur_small_float``) work in place
+  on a block ``M[r0:r0+m, c0:c0+n]`` of a C-contiguous root matrix, so each kernel
+  compiles once whatever block it is given.
 """
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 __all__ = ["addmod", "submod", "negmod", "mulmod", "invmod", "gcdex_mod", "gcd_n",
-           "mulmod_array", "combine_limbs"]
+           "mulmod_array", "limb_leaves", "limb_combine", "to_float", "reduce_float",
+           "reduce_float_to_uint", "reduce_float_to_int64", "range_to_float_int64",
+           "range_to_float_uint64", "ple_base_float", "trsm_lower_unit_float",
+           "trsm_upper_float", "sub_block_float", "schur_small_float", "matvec_uint32",
+           "range_copy_int64", "range_copy_uint64"]
 
 _U0 = np.uint64(0)
 _U1 = np.uint64(1)
@@ -193,20 +213,365 @@ def mulmod_array(a, b, n, out):
         out[i] = mulmod(a[i], b[i], n)
 
 
-@njit(cache=True, parallel=True)
-def combine_limbs(partials, shifts, n, out):
-    """out = sum_d partials[d] * shifts[d] mod n.
+# ---------------------------------------------------------------------- limb products
+_TWO53 = np.uint64(1 << 53)
+_TWO62 = np.uint64(1 << 62)
 
-    partials: uint64 (D, m) exact partial products grouped by limb degree, each entry
-    already < 2^63; shifts: uint64 (D,) the values 2^(b d) mod n.
+
+@njit(cache=True)
+def limb_leaves(A, b, subsets, out):
+    """Leaf operands of a Karatsuba scheme on b-bit limbs.
+
+    Parameters
+    ----------
+    A : uint64[m, c]
+        Entries (any value below 2^64).
+    b : int
+        Limb width in bits; limb t of x is ``(x >> (b t)) & (2^b - 1)``.
+    subsets : int64[leaves, L]
+        ``subsets[s, t] = 1`` when limb t enters leaf s.
+    out : float64[leaves, m, c]
+        Receives, for each leaf, the sum of its limbs (exact: sums stay below 2^53).
+
+    References
+    ----------
+    .. [1] A. Karatsuba, Yu. Ofman, "Multiplication of multidigit numbers on
+       automata", Soviet Physics Doklady 7, 1963.
     """
-    D = partials.shape[0]
-    m = partials.shape[1]
-    for j in prange(m):
-        acc = _U0
-        for d in range(D):
-            v = partials[d, j]
-            if n != _U0:
-                v = v % n
-            acc = addmod(acc, mulmod(v, shifts[d], n), n)
-        out[j] = acc
+    nleaf, L = subsets.shape
+    mask = (_U1 << np.uint64(b)) - _U1
+    m, c = A.shape
+    for i in range(m):
+        for s in range(nleaf):
+            first = True
+            for t in range(L):
+                if subsets[s, t]:
+                    sh = np.uint64(b * t)
+                    if first:
+                        for j in range(c):
+                            out[s, i, j] = np.float64(np.int64((A[i, j] >> sh) & mask))
+                        first = False
+                    else:
+                        for j in range(c):
+                            out[s, i, j] += np.float64(np.int64((A[i, j] >> sh) & mask))
+
+
+@njit(cache=True)
+def limb_combine(P, M, b, n, out):
+    """Interpolate leaf products into limb coefficients and evaluate at 2^b mod n.
+
+    Parameters
+    ----------
+    P : float64[leaves, m, c]
+        Exact leaf products (integers below 2^53).
+    M : int64[D, leaves]
+        Interpolation: coefficient d of the limb product is ``sum_s M[d, s] P[s]``,
+        an integer in [0, 2^53) (the caller's choice of b guarantees it).
+    b : int
+        Limb width.
+    n : uint64
+        Modulus, 0 standing for 2^64.
+    out : uint64[m, c]
+        Receives ``sum_d c_d 2^(b d) mod n``.
+
+    Notes
+    -----
+    Horner's rule from the top coefficient: acc <- acc 2^b + c_d. The shift is a
+    product by a constant below 2^21 with a float64 quotient estimate while n < 2^62
+    (remainder off by at most n, fixed by a compare), b doublings with a conditional
+    subtraction above, the machine's wrapping shift for n = 2^64. Row by row, with
+    each step a loop over the row that the compiler vectorises.
+
+    References
+    ----------
+    .. [1] J.-G. Dumas, P. Giorgi, C. Pernet, "Dense linear algebra over word-size
+       prime fields: the FFLAS and FFPACK packages", ACM TOMS 35(3), 2008.
+    """
+    D, nleaf = M.shape
+    m, c = out.shape
+    coef = np.empty(c, dtype=np.int64)
+    acc = np.empty(c, dtype=np.uint64)
+    ns = np.int64(n)
+    nf = np.float64(n) if n != _U0 else 1.0
+    ninv = 1.0 / nf
+    wide = n >= _TWO62 or n == _U0
+    small = n != _U0 and n < _TWO53
+    for i in range(m):
+        for d in range(D - 1, -1, -1):
+            for j in range(c):
+                coef[j] = 0
+            for s in range(nleaf):
+                w = M[d, s]
+                if w != 0:
+                    for j in range(c):
+                        coef[j] += w * np.int64(P[s, i, j])
+            if small:
+                for j in range(c):
+                    x = coef[j]
+                    q = np.int64(np.float64(x) * ninv)
+                    r = x - q * ns
+                    r = r + ns if r < 0 else r
+                    r = r - ns if r >= ns else r
+                    coef[j] = r
+            if d == D - 1:
+                for j in range(c):
+                    acc[j] = np.uint64(coef[j])
+                continue
+            if n == _U0:
+                for j in range(c):
+                    acc[j] = acc[j] << np.uint64(b)
+            elif not wide:
+                left = b
+                while left > 0:
+                    step = min(left, 20)
+                    cf = np.float64(1 << step)
+                    cu = np.uint64(1 << step)
+                    for j in range(c):
+                        x = acc[j]
+                        q = np.uint64(np.float64(x) * cf * ninv)
+                        r = np.int64(x * cu - q * n)
+                        r = r + ns if r < 0 else r
+                        r = r - ns if r >= ns else r
+                        acc[j] = np.uint64(r)
+                    left -= step
+            else:
+                for _ in range(b):
+                    for j in range(c):
+                        x = acc[j]
+                        t = n - x
+                        acc[j] = x - t if x >= t else x + x
+            for j in range(c):
+                acc[j] = addmod(acc[j], np.uint64(coef[j]), n)
+        for j in range(c):
+            out[i, j] = acc[j]
+
+
+# ------------------------------------------------- float64 representation, p^2 < 2^52
+@njit(cache=True)
+def to_float(A, out):
+    """out = A (uint64 entries below 2^53) as float64."""
+    for i in range(A.shape[0]):
+        for j in range(A.shape[1]):
+            out[i, j] = np.float64(A[i, j])
+
+
+@njit(cache=True, inline="always")
+def _freduce(x, p, pinv):
+    # x an integer-valued float with |x| < 2^52: floor(x / p) is off by at most one.
+    r = x - p * np.floor(x * pinv)
+    r = r + p if r < 0.0 else r
+    return r - p if r >= p else r
+
+
+@njit(cache=True)
+def reduce_float(C, p):
+    """C mod p in place (entries integer-valued, |C| < 2^52), into [0, p)."""
+    pinv = 1.0 / p
+    for i in range(C.shape[0]):
+        for j in range(C.shape[1]):
+            C[i, j] = _freduce(C[i, j], p, pinv)
+
+
+@njit(cache=True)
+def reduce_float_to_uint(C, p, out):
+    """out = C mod p as uint64 (entries integer-valued, |C| < 2^52)."""
+    pinv = 1.0 / p
+    for i in range(C.shape[0]):
+        for j in range(C.shape[1]):
+            out[i, j] = np.uint64(np.int64(_freduce(C[i, j], p, pinv)))
+
+
+@njit(cache=True)
+def reduce_float_to_int64(C, p, out):
+    """out = C mod p as int64 (entries integer-valued, |C| < 2^52)."""
+    pinv = 1.0 / p
+    for i in range(C.shape[0]):
+        for j in range(C.shape[1]):
+            out[i, j] = np.int64(_freduce(C[i, j], p, pinv))
+
+
+@njit(cache=True)
+def range_to_float_int64(a, bound, out):
+    """out = a as float64 when every entry lies in [0, bound) (bound <= 2^53); returns
+    -1, or the index of the first entry outside."""
+    for i in range(a.shape[0]):
+        x = a[i]
+        if x < 0 or x >= bound:
+            return i
+        out[i] = np.float64(x)
+    return -1
+
+
+@njit(cache=True)
+def range_to_float_uint64(a, bound, out):
+    """As :func:`range_to_float_int64` for uint64 input."""
+    for i in range(a.shape[0]):
+        x = a[i]
+        if x >= np.uint64(bound):
+            return i
+        out[i] = np.float64(np.int64(x))
+    return -1
+
+
+@njit(cache=True)
+def sub_block_float(M, r0, c0, P, p):
+    """M[r0:r0+h, c0:c0+w] = (M[...] - P) mod p for P of shape (h, w), 0 <= P < 2^52."""
+    pinv = 1.0 / p
+    for i in range(P.shape[0]):
+        for j in range(P.shape[1]):
+            M[r0 + i, c0 + j] = _freduce(M[r0 + i, c0 + j] - P[i, j], p, pinv)
+
+
+@njit(cache=True)
+def ple_base_float(M, r0, c0, m, n, p, perm, pivots):
+    """PLE decomposition in place of the block M[r0:r0+m, c0:c0+n] (float64, p prime).
+
+    Gaussian elimination by columns with row swaps inside the block: on return the
+    pivot rows 0..r-1 hold E (row echelon form, pivots not normalised) and, below each
+    pivot, the multipliers of L (unit lower triangular, column k of L stored in the
+    column of pivot k). ``perm[i]`` is the block row now at row i; ``pivots[:r]`` the
+    pivot columns (relative to c0). Returns the rank r.
+
+    Reduction is delayed: a column is reduced only when it becomes the pivot column,
+    so each entry is reduced once and the row updates are plain multiply-adds (at most
+    n of them per entry, and n p^2 < 2^52 is the caller's bound).
+
+    References
+    ----------
+    .. [1] C.-P. Jeannerod, C. Pernet, A. Storjohann, "Rank-profile revealing Gaussian
+       elimination and the CUP matrix decomposition", J. Symbolic Computation 56, 2013.
+    .. [2] J.-G. Dumas, P. Giorgi, C. Pernet, "Dense linear algebra over word-size
+       prime fields: the FFLAS and FFPACK packages", ACM TOMS 35(3), 2008 (delayed
+       reduction).
+    """
+    pinv = 1.0 / p
+    pu = np.uint64(p)
+    for i in range(m):
+        perm[i] = i
+    r = 0
+    for c in range(n):
+        if r == m:
+            break
+        hit = -1
+        for i in range(r, m):
+            x = _freduce(M[r0 + i, c0 + c], p, pinv)
+            M[r0 + i, c0 + c] = x
+            if hit < 0 and x != 0.0:
+                hit = i
+        if hit < 0:
+            continue
+        if hit != r:
+            for j in range(n):
+                t = M[r0 + hit, c0 + j]
+                M[r0 + hit, c0 + j] = M[r0 + r, c0 + j]
+                M[r0 + r, c0 + j] = t
+            t2 = perm[hit]
+            perm[hit] = perm[r]
+            perm[r] = t2
+        for j in range(c + 1, n):
+            M[r0 + r, c0 + j] = _freduce(M[r0 + r, c0 + j], p, pinv)
+        inv = np.float64(invmod(np.uint64(M[r0 + r, c0 + c]), pu))
+        for i in range(r + 1, m):
+            a = M[r0 + i, c0 + c]
+            if a == 0.0:
+                continue
+            f = _freduce(a * inv, p, pinv)
+            M[r0 + i, c0 + c] = f
+            for j in range(c + 1, n):
+                M[r0 + i, c0 + j] -= f * M[r0 + r, c0 + j]
+        pivots[r] = c
+        r += 1
+    for i in range(r, m):
+        for j in range(n):
+            M[r0 + i, c0 + j] = _freduce(M[r0 + i, c0 + j], p, pinv)
+    return r
+
+
+@njit(cache=True)
+def trsm_lower_unit_float(L, lr0, lc0, r, B, br0, bc0, w, p):
+    """B[br0:br0+r, bc0:bc0+w] := L^-1 B for the unit lower triangular r x r block of L
+    at (lr0, lc0) (entries on and above the diagonal are ignored); forward
+    substitution with one reduction per row (r p^2 < 2^52 is the caller's bound)."""
+    pinv = 1.0 / p
+    for i in range(1, r):
+        for k in range(i):
+            f = L[lr0 + i, lc0 + k]
+            if f != 0.0:
+                for j in range(w):
+                    B[br0 + i, bc0 + j] -= f * B[br0 + k, bc0 + j]
+        for j in range(w):
+            B[br0 + i, bc0 + j] = _freduce(B[br0 + i, bc0 + j], p, pinv)
+
+
+@njit(cache=True)
+def trsm_upper_float(U, ur0, uc0, r, B, br0, bc0, w, p):
+    """B[br0:br0+r, bc0:bc0+w] := U^-1 B for the upper triangular r x r block of U at
+    (ur0, uc0) with nonzero diagonal (entries below the diagonal are ignored)."""
+    pinv = 1.0 / p
+    pu = np.uint64(p)
+    for i in range(r - 1, -1, -1):
+        for k in range(i + 1, r):
+            f = U[ur0 + i, uc0 + k]
+            if f != 0.0:
+                for j in range(w):
+                    B[br0 + i, bc0 + j] -= f * B[br0 + k, bc0 + j]
+        d = np.float64(invmod(np.uint64(U[ur0 + i, uc0 + i]), pu))
+        for j in range(w):
+            B[br0 + i, bc0 + j] = _freduce(_freduce(B[br0 + i, bc0 + j], p, pinv) * d,
+                                           p, pinv)
+
+
+@njit(cache=True)
+def schur_small_float(M, r0, c0, X, xr0, xc0, Y, yr0, yc0, h, k, w, p):
+    """M[r0:r0+h, c0:c0+w] := (M - X Y) mod p with X = X[xr0:xr0+h, xc0:xc0+k] and
+    Y = Y[yr0:yr0+k, yc0:yc0+w] (k p^2 < 2^52): the Schur update for a small inner
+    dimension, where a multithreaded BLAS call costs more than the arithmetic."""
+    pinv = 1.0 / p
+    acc = np.empty(w)
+    for i in range(h):
+        for j in range(w):
+            acc[j] = M[r0 + i, c0 + j]
+        for t in range(k):
+            f = X[xr0 + i, xc0 + t]
+            if f != 0.0:
+                for j in range(w):
+                    acc[j] -= f * Y[yr0 + t, yc0 + j]
+        for j in range(w):
+            M[r0 + i, c0 + j] = _freduce(acc[j], p, pinv)
+
+
+@njit(cache=True)
+def matvec_uint32(A, x, p, out):
+    """out = A x mod p for A uint32 (entries < p), x uint64 (entries < p), with
+    ncols (p - 1)^2 < 2^64 (the caller's bound): exact uint64 dot products, one
+    reduction per entry. A quarter of the memory traffic of a float64 product, which
+    is what a matrix-vector product is bound by."""
+    for i in range(A.shape[0]):
+        acc = np.uint64(0)
+        for j in range(A.shape[1]):
+            acc += np.uint64(A[i, j]) * x[j]
+        out[i] = acc % p
+
+
+@njit(cache=True)
+def range_copy_int64(a, bound, out):
+    """out = a as uint64 when every entry lies in [0, bound); returns -1, or the index
+    of the first entry outside (``out`` then partly written). One pass: the check and
+    the conversion of input validation together."""
+    for i in range(a.shape[0]):
+        x = a[i]
+        if x < 0 or np.uint64(x) >= bound:
+            return i
+        out[i] = np.uint64(x)
+    return -1
+
+
+@njit(cache=True)
+def range_copy_uint64(a, bound, out):
+    """As :func:`range_copy_int64` for uint64 input."""
+    for i in range(a.shape[0]):
+        x = a[i]
+        if x >= bound:
+            return i
+        out[i] = x
+    return -1

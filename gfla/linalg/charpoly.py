@@ -6,6 +6,15 @@ Characteristic polynomial methods (selectable, cross-checked in the tests):
   three-term recurrence for the leading principal blocks; O(n^3), fields only.
 * ``berkowitz`` -- Berkowitz's division-free algorithm; O(n^4), valid over any
   commutative ring (the method for Z/n).
+* ``krylov`` -- fields, for large n (the ``auto`` choice from ``krylov_min``): the
+  Krylov sequence v, A v, A^2 v, ... of a random vector until its first dependency
+  A^d v = c_0 v + ... + c_(d-1) A^(d-1) v, whose polynomial x^d - c_(d-1) x^(d-1) -
+  ... - c_0 divides the characteristic polynomial; when d < n the matrix is similar
+  to [[C, *], [0, A']] on a basis extending the Krylov vectors, and the rest is the
+  characteristic polynomial of A' (a Schur complement, by the fast product),
+  recursively. Cost: n matrix-vector products plus one block-recursive elimination
+  for a generic matrix; correct for every matrix (derogatory ones just take more
+  rounds);
 * ``csanky`` -- power sums s_k = tr(A^k) and Newton's identities
   s_k + c_1 s_(k-1) + ... + c_(k-1) s_1 + k c_k = 0; divides by 1..n, so it is valid
   only when every k <= n is invertible (characteristic 0 or greater than n). Otherwise
@@ -24,6 +33,11 @@ References
    small number of processors", Information Processing Letters 18, 1984.
 .. [3] L. Csanky, "Fast parallel matrix inversion algorithms", SIAM J. Computing 5(4),
    1976.
+.. [4] W. Keller-Gehrig, "Fast algorithms for the characteristic polynomial",
+   Theoretical Computer Science 36, 1985 (the Krylov basis and its similarity
+   transform).
+.. [5] C. Pernet, A. Storjohann, "Faster algorithms for the characteristic polynomial",
+   ISSAC 2007 (LU-Krylov: Krylov iteration with the elimination of the quotient).
 """
 
 import math
@@ -34,7 +48,18 @@ from ..errors import InputError, MethodNotApplicableError
 
 __all__ = ["charpoly", "minpoly", "poly_at_matrix", "minpoly_factors", "METHODS"]
 
-METHODS = ("auto", "hessenberg", "berkowitz", "csanky")
+METHODS = ("auto", "hessenberg", "berkowitz", "csanky", "krylov")
+
+# From this order on, ``auto`` runs the Krylov method over GF(2) and the primes whose
+# matrix-vector product has the uint32 kernel (``_matvec``), from KRYLOV_MIN_TABLES on
+# over GF(2^k); over larger primes the Hessenberg kernel stays (its O(n^3) scalar
+# operations beat n matrix-vector products with a full modular reduction per term).
+# Measured (seconds, Hessenberg / Krylov): GF(65521) n = 96 0.0017 / 0.0011, 192
+# 0.016 / 0.0058; GF(2) 128 0.0032 / 0.0034, 512 0.24 / 0.023; GF(3) 512 0.31 / 0.043;
+# GF(2^8) 192 0.017 / 0.018; GF(2^16) 256 0.083 / 0.059, 512 0.74 / 0.46; GF(2^61-1)
+# 512 1.98 / 2.27; GF(2^31-1) 192 0.021 / 0.049.
+KRYLOV_MIN = 128
+KRYLOV_MIN_TABLES = 256
 
 
 def charpoly(F, U, method="auto"):
@@ -42,7 +67,17 @@ def charpoly(F, U, method="auto"):
         raise InputError(f"unknown charpoly method {method!r}; choose one of "
                          + ", ".join(METHODS))
     if method == "auto":
-        method = "hessenberg" if F.is_field else "berkowitz"
+        if not F.is_field:
+            method = "berkowitz"
+        else:
+            start = krylov_min(F, U.shape[0])
+            method = "krylov" if start is not None and U.shape[0] >= start else "hessenberg"
+    if method == "krylov":
+        if not F.is_field:
+            raise MethodNotApplicableError(
+                f"the Krylov method divides, which {F.spec} does not allow; use "
+                "berkowitz")
+        return _krylov(F, U)
     if method == "hessenberg":
         if not F.is_field:
             raise MethodNotApplicableError(
@@ -52,6 +87,137 @@ def charpoly(F, U, method="auto"):
     if method == "berkowitz":
         return F._berkowitz(U)
     return _csanky(F, U)
+
+
+def _fast_matvec(F, n):
+    return F.spec == "GF(2)" or (int(F._ctx[0]) == 0 and F.size < (1 << 32)
+                                 and n * (F.size - 1) ** 2 < (1 << 64))
+
+
+def krylov_min(F, n=1024):
+    """The order from which ``auto`` picks the Krylov method over field F (None:
+    never), for matrices of order about n."""
+    if _fast_matvec(F, n):
+        return KRYLOV_MIN
+    if int(F._ctx[0]) == 1:
+        return KRYLOV_MIN_TABLES
+    return None
+
+
+def _matvec(F, U):
+    """A function x -> U x (uint64 vectors) for the field's fastest kernel."""
+    n = U.shape[1]
+    if F.spec == "GF(2)":
+        from ..kernels import binary
+        P = binary.pack(np.ascontiguousarray(U, dtype=np.uint8))
+        y = np.empty((U.shape[0] + 63) // 64, dtype=np.uint64)
+
+        def mv(x):
+            binary.matvec(P, binary.pack(x.reshape(1, -1).astype(np.uint8))[0], y)
+            return binary.unpack(y.reshape(1, -1), U.shape[0])[0].astype(np.uint64)
+        return mv
+    if _fast_matvec(F, n):
+        from ..kernels import modular
+        A32 = np.ascontiguousarray(U, dtype=np.uint32)
+        p = np.uint64(F.size)
+
+        def mv(x):
+            out = np.empty(U.shape[0], dtype=np.uint64)
+            modular.matvec_uint32(A32, x, p, out)
+            return out
+        return mv
+    from ..kernels import dense
+    A = np.ascontiguousarray(U, dtype=np.uint64)
+
+    def mv(x):
+        out = np.empty(U.shape[0], dtype=np.uint64)
+        dense.matvec(A, x, F._ctx, out)
+        return out
+    return mv
+
+
+def _krylov_round(F, A, rng):
+    """One round on the square A: (polynomial of the first Krylov dependency, highest
+    degree first, and the quotient matrix A' or None when the Krylov space is the
+    whole space)."""
+    from .eliminate import solve
+    n = A.shape[0]
+    mv = _matvec(F, A)
+    KT = np.empty((n + 1, n), dtype=np.uint64)
+    x = rng.integers(0, min(F.size, 1 << 63), size=n, dtype=np.uint64)
+    if not x.any():
+        x[0] = 1
+    KT[0] = x
+    d = None
+    check = 32
+    for t in range(1, n + 1):
+        KT[t] = mv(KT[t - 1])
+        if t + 1 == check and t + 1 <= n:
+            r = F._rank(KT[:t + 1])
+            if r < t + 1:
+                d = r
+                break
+            check *= 4
+    if d is None:
+        ok, c, N = solve(F, np.ascontiguousarray(KT[:n].T), KT[n])
+        d = n - N.shape[0]
+        if d < n:
+            c = None
+    else:
+        c = None
+    if c is None:
+        ok, c, N = solve(F, np.ascontiguousarray(KT[:d].T), KT[d])
+        if not ok or N.shape[0]:  # pragma: no cover - the Krylov property forbids it
+            raise AssertionError("Krylov dependency not found")
+    poly = [1] + [int(v) for v in F._neg(np.ascontiguousarray(c[::-1]))]
+    if d == n:
+        return poly, None
+    # Q = [K | E] with E the unit vectors off the row rank profile J of K: then
+    # Q^-1 A Q = [[C, *], [0, A']] with A' = A[C, C] - K[C] K[J]^-1 A[J, C].
+    R = KT[:d].copy()
+    piv, _ = F._rref(R)
+    J = np.asarray(piv, dtype=np.int64)
+    Cc = np.setdiff1d(np.arange(n, dtype=np.int64), J)
+    K1 = np.ascontiguousarray(KT[:d][:, J].T)
+    K2 = np.ascontiguousarray(KT[:d][:, Cc].T)
+    K1inv = F._inverse(K1)
+    Z = F._matmul(K1inv, np.ascontiguousarray(A[J][:, Cc]))
+    Aq = F._sub(np.ascontiguousarray(A[Cc][:, Cc]), F._matmul(K2, Z))
+    return poly, Aq
+
+
+def _krylov(F, U, seed=0):
+    rng = np.random.default_rng(seed)
+    factors = []
+    A = np.ascontiguousarray(U, dtype=np.uint64)
+    while A is not None and A.shape[0]:
+        if A.shape[0] < 16:
+            factors.append(F._hessenberg(A))
+            break
+        poly, A = _krylov_round(F, A, rng)
+        factors.append(poly)
+    return _poly_product(F, factors)
+
+
+def _poly_product(F, factors):
+    if len(factors) == 1:
+        return factors[0]
+    if F.size == F.characteristic:
+        p = F.size
+        out = [1]
+        for f in factors:
+            prod = [0] * (len(out) + len(f) - 1)
+            for i, a in enumerate(out):
+                if a:
+                    for j, b in enumerate(f):
+                        prod[i + j] += a * b
+            out = [v % p for v in prod]
+        return out
+    from . import polynomials
+    out = [1]
+    for f in factors:
+        out = polynomials.poly_mul(F, out, f)
+    return out
 
 
 def _smallest_nonunit_integer(F):

@@ -2,7 +2,8 @@
 
 Methods:
 
-* ``gauss-jordan`` -- elimination on [A | I] (fields);
+* ``gauss-jordan`` -- elimination (fields): Gauss-Jordan on [A | I] for small n, the
+  block-recursive PLE decomposition of ``linalg.blocked`` above its cutoff;
 * ``cayley-hamilton`` -- from the characteristic polynomial
   p(x) = x^n + c_1 x^(n-1) + ... + c_n, A^-1 = -(A^(n-1) + c_1 A^(n-2) + ... +
   c_(n-1) I) / c_n, valid in any characteristic and over any commutative ring once the
@@ -64,19 +65,12 @@ def inv(F, U, method="auto", verify=False):
 
 
 def _gauss_jordan(F, U):
-    n = U.shape[0]
-    if hasattr(F, "_inverse"):
-        X = F._inverse(U)
-        if X is None:
-            raise singular_error(F, U)
-        return X
-    M = np.zeros((n, 2 * n), dtype=np.uint64)
-    M[:, :n] = U
-    M[:, n:] = F._identity(n)
-    piv, _ = F._rref(M, n)
-    if len(piv) < n:
+    """Elimination: the family's ``_inverse`` (Gauss-Jordan on [A | I] for small n,
+    the block-recursive PLE of ``linalg.blocked`` above its cutoff)."""
+    X = F._inverse(U)
+    if X is None:
         raise singular_error(F, U)
-    return M[:, n:].copy()
+    return X
 
 
 def _cayley_hamilton(F, U):
