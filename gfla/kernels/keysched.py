@@ -23,29 +23,12 @@ x_power_mod
 import numpy as np
 from numba import njit
 
+from .binary import matvec
+
 __all__ = ["krylov_charpoly", "poly_apply", "affine_orbit", "x_power_mod"]
 
 _ONE = np.uint64(1)
 _ZERO = np.uint64(0)
-
-
-@njit(cache=True)
-def _matvec(P, x, y, n):
-    """y = P x for a packed n x n matrix (rows) and packed vectors."""
-    w = P.shape[1]
-    for q in range(y.shape[0]):
-        y[q] = _ZERO
-    for i in range(n):
-        acc = _ZERO
-        for q in range(w):
-            acc ^= P[i, q] & x[q]
-        acc ^= acc >> np.uint64(32)
-        acc ^= acc >> np.uint64(16)
-        acc ^= acc >> np.uint64(8)
-        acc ^= acc >> np.uint64(4)
-        acc ^= acc >> np.uint64(2)
-        acc ^= acc >> np.uint64(1)
-        y[i >> 6] |= (acc & _ONE) << np.uint64(i & 63)
 
 
 @njit(cache=True)
@@ -150,7 +133,7 @@ def krylov_charpoly(P, n):
             piv[rank] = lead
             is_piv[lead] = True
             rank += 1
-            _matvec(P, vec, nxt, n)
+            matvec(P, vec, nxt)
             for q in range(w):
                 vec[q] = nxt[q]
             carry = _ZERO
@@ -189,7 +172,7 @@ def poly_apply(P, n, coeffs, deg, v, out):
     for q in range(w):
         out[q] = _ZERO
     for i in range(deg, -1, -1):
-        _matvec(P, out, tmp, n)
+        matvec(P, out, tmp)
         if (coeffs[i >> 6] >> np.uint64(i & 63)) & _ONE:
             for q in range(w):
                 out[q] = tmp[q] ^ v[q]
@@ -225,7 +208,7 @@ def affine_orbit(P, n, C, s0, out):
     for q in range(w):
         out[0, q] = s0[q]
     for r in range(R):
-        _matvec(P, out[r], out[r + 1], n)
+        matvec(P, out[r], out[r + 1])
         for q in range(w):
             out[r + 1, q] ^= C[r, q]
 
