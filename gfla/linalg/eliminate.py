@@ -40,7 +40,8 @@ def rref(F, U):
 
 def _field_nullspace_from_rref(F, R, piv, ncols):
     piv = [int(p) for p in piv]
-    free = [j for j in range(ncols) if j not in set(piv)]
+    pivot_set = set(piv)
+    free = [j for j in range(ncols) if j not in pivot_set]
     N = np.zeros((len(free), ncols), dtype=np.uint64)
     if not free:
         return N
