@@ -84,10 +84,15 @@ class _Progress:
 @click.option("--chunk-size", type=click.IntRange(min=1), default=None, metavar="N",
               help="Records per chunk (the unit of work and of the journal). Default: "
                    "16384 lines of JSON Lines, 65536 matrices of .npy.")
+@click.option("--id-check/--no-id-check", default=True, show_default=True,
+              help="JSON Lines: a record whose id an earlier record has becomes an "
+                   "error line naming that record's line (memory: about 35-70 bytes "
+                   "per record). --no-id-check runs every record, memory flat.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress bar and no summary.")
 @click.option("--json", "as_json", is_flag=True,
               help="Print the summary as one JSON object on stdout.")
-def run(input_path, out, workers, resume, engine, scheduler, chunk_size, quiet, as_json):
+def run(input_path, out, workers, resume, engine, scheduler, chunk_size, id_check, quiet,
+        as_json):
     """Run every record of INPUT; write one result per record.
 
     INPUT is JSON Lines, one record per line:
@@ -121,7 +126,8 @@ def run(input_path, out, workers, resume, engine, scheduler, chunk_size, quiet, 
     progress = None if quiet or not sys.stderr.isatty() else _Progress()
     try:
         summary = run_batch(input_path, out, workers=workers, resume=resume, engine=engine,
-                            scheduler=scheduler, chunk_size=chunk_size, progress=progress)
+                            scheduler=scheduler, chunk_size=chunk_size, progress=progress,
+                            check_ids=id_check)
     finally:
         if progress is not None:
             progress.close()

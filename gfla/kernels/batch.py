@@ -36,7 +36,7 @@ from .modular import invmod, mulmod, negmod, submod
 
 __all__ = ["BLOCK", "STATUS_OK", "STATUS_SINGULAR", "STATUS_NOT_A_UNIT", "tables",
            "batch_inverse", "batch_det", "batch_rank", "batch_solve", "inverse_range",
-           "det_range", "rank_range", "solve_range"]
+           "det_range", "rank_range", "solve_range", "id_hashes", "id_insert", "id_place"]
 
 BLOCK = 64
 
@@ -684,3 +684,91 @@ def solve_range(A, B, ctx, expz, logz, x, null, nullity, consistent, start, stop
         W = np.empty((rows, n + 1), dtype=np.uint64)
         for k in range(start, stop):
             _solve_mod(A, B, k, x, null, nullity, consistent, W, pivcol, m)
+
+
+# --------------------------------------------------------------------------- record ids
+
+_FNV_OFFSET = np.uint64(0xcbf29ce484222325)
+_FNV_PRIME = np.uint64(0x100000001b3)
+
+
+@njit(cache=True)
+def id_hashes(buf, ends):
+    """64-bit hashes of the byte strings ``buf[ends[i-1]:ends[i]]`` (FNV-1a, then the
+    splitmix64 finaliser so that every input bit reaches every output bit).
+
+    The hash only routes ids to slots of :func:`id_insert`'s table: equal hashes are
+    confirmed by comparing the ids themselves, so a collision costs time, never a
+    wrong answer.
+
+    References
+    ----------
+    .. [1] G. Fowler, L. C. Noll, K.-P. Vo, D. Eastlake, "The FNV Non-Cryptographic
+       Hash Algorithm", IETF draft draft-eastlake-fnv.
+    .. [2] G. L. Steele, D. Lea, C. H. Flood, "Fast splittable pseudorandom number
+       generators", OOPSLA 2014 (the splitmix64 finaliser).
+    """
+    out = np.empty(ends.shape[0], dtype=np.uint64)
+    start = 0
+    for i in range(ends.shape[0]):
+        h = _FNV_OFFSET
+        for j in range(start, ends[i]):
+            h = (h ^ np.uint64(buf[j])) * _FNV_PRIME
+        h ^= h >> np.uint64(30)
+        h *= np.uint64(0xbf58476d1ce4e5b9)
+        h ^= h >> np.uint64(27)
+        h *= np.uint64(0x94d049bb133111eb)
+        h ^= h >> np.uint64(31)
+        out[i] = h
+        start = ends[i]
+    return out
+
+
+@njit(cache=True)
+def id_insert(keys, lines, offsets, h, line, offset, hits):
+    """Insert ids, in order, into an open-addressing table (linear probing).
+
+    ``keys``, ``lines``, ``offsets`` are the table (a power-of-two length; a slot is free
+    while ``lines`` is 0: input lines count from 1). Id i has hash ``h[i]``, input line
+    ``line[i]`` and byte offset ``offset[i]``. When a slot with the same hash is found,
+    id i is not inserted and ``hits[i]`` receives that slot's index (else -1): the caller
+    compares the ids and calls :func:`id_place` for those that differ.
+
+    Returns the number of ids inserted.
+
+    References
+    ----------
+    .. [1] D. E. Knuth, "The Art of Computer Programming", vol. 3, 2nd ed.,
+       Addison-Wesley, 1998, section 6.4, algorithm L (linear probing).
+    """
+    mask = np.uint64(keys.shape[0] - 1)
+    added = 0
+    for i in range(h.shape[0]):
+        j = h[i] & mask
+        hits[i] = -1
+        while True:
+            if lines[j] == 0:
+                keys[j] = h[i]
+                lines[j] = line[i]
+                offsets[j] = offset[i]
+                added += 1
+                break
+            if keys[j] == h[i]:
+                hits[i] = np.int64(j)
+                break
+            j = (j + _U1) & mask
+    return added
+
+
+@njit(cache=True)
+def id_place(keys, lines, offsets, h, line, offset):
+    """Insert entries without looking for equal hashes (growing the table, or an id
+    whose hash collided with a different id's)."""
+    mask = np.uint64(keys.shape[0] - 1)
+    for i in range(h.shape[0]):
+        j = h[i] & mask
+        while lines[j] != 0:
+            j = (j + _U1) & mask
+        keys[j] = h[i]
+        lines[j] = line[i]
+        offsets[j] = offset[i]

@@ -220,7 +220,7 @@ def _jsonl_chunks(path, offset, line, chunk_lines):
 # --------------------------------------------------------------------------- run
 
 def run(input_path, out, workers=1, resume=False, engine="local", scheduler=None,
-        chunk_size=None, progress=None):
+        chunk_size=None, progress=None, check_ids=True):
     """Run a batch job over a vector file.
 
     Parameters
@@ -242,6 +242,10 @@ def run(input_path, out, workers=1, resume=False, engine="local", scheduler=None
     progress : callable, optional
         ``progress(done, total, records)``: done and total in bytes of input (JSON
         Lines) or matrices (.npy), records done so far.
+    check_ids : bool
+        JSON Lines: a record whose id an earlier record has becomes an error line
+        (:mod:`gfla.jobs.batch.ids`; about 35-70 bytes of memory per record). False
+        runs every record and keeps memory flat.
 
     Returns
     -------
@@ -270,7 +274,7 @@ def run(input_path, out, workers=1, resume=False, engine="local", scheduler=None
         if os.path.abspath(out) == os.path.abspath(input_path):
             raise InputError("--out names the input file itself")
         return _run_jsonl(input_path, out, header, workers, resume, engine, scheduler,
-                          chunk_size or DEFAULT_CHUNK_LINES, progress)
+                          chunk_size or DEFAULT_CHUNK_LINES, progress, check_ids)
     return _run_bulk(input_path, out, header, workers, resume, engine, scheduler,
                      chunk_size or DEFAULT_CHUNK_MATRICES, progress)
 
@@ -315,9 +319,27 @@ def _open_journal(journal, header, resume, outputs):
     return None, False, 0
 
 
-def _run_jsonl(path, out, header, workers, resume, engine, scheduler, chunk_lines, progress):
+def _known_ids(path, upto, chunk_lines, check_ids):
+    """The id registry of a run, with the ids of the input's first ``upto`` bytes."""
+    if not check_ids:
+        return None
+    from .ids import IdRegistry
+    from .records import scan_ids
+    registry = IdRegistry(path)
+    for data, first, end, _ in _jsonl_chunks(path, 0, 1, chunk_lines):
+        start = end - len(data)
+        if start >= upto:
+            break
+        # A resumed run may use another chunk size: stop at the recorded offset (the
+        # end of a line) even inside a chunk.
+        registry.add(scan_ids(data[:upto - start], first), start)
+    return registry
+
+
+def _run_jsonl(path, out, header, workers, resume, engine, scheduler, chunk_lines, progress,
+               check_ids):
     from .journal import Journal, fsync_directory
-    from .records import process_lines
+    from .records import mark_duplicates, process_lines
     t0 = time.perf_counter()
     journal = Journal(out + ".journal")
     state, done, valid = _open_journal(journal, header, resume, [out])
@@ -330,6 +352,7 @@ def _run_jsonl(path, out, header, workers, resume, engine, scheduler, chunk_line
         return Summary(path, "jsonl", files, base["records"], base["failed"], base["kinds"],
                        base["seconds"], True, engine, workers, already_done=True)
     resumed = state is not None
+    registry = _known_ids(path, base["input_offset"], chunk_lines, check_ids)
     executor = _executor(engine, workers, scheduler)
     try:
         if resumed:
@@ -362,15 +385,24 @@ def _run_jsonl(path, out, header, workers, resume, engine, scheduler, chunk_line
 
     def commit(item):
         nonlocal records, failed, seq, outbytes
-        end, next_line, fut = item
+        start, end, next_line, fut = item
         res = fut.result()
-        outfh.write(res.data)
+        data = res.data
+        if registry is not None:
+            found = registry.add(res.ids, start)
+            if found:
+                data, more, kinds = mark_duplicates(data, found)
+                failed += more
+                counts.update(kinds)
+        outfh.write(data)
         outfh.flush()
         os.fsync(outfh.fileno())
-        outbytes += len(res.data)
+        outbytes += len(data)
         records += res.records
         failed += res.failed
         counts.update(res.kinds)
+        for kind in [k for k, v in counts.items() if v == 0]:
+            del counts[kind]
         seq += 1
         journal.append({"kind": "chunk", "seq": seq, "input_offset": end,
                         "next_line": next_line, "output_bytes": outbytes,
@@ -382,7 +414,8 @@ def _run_jsonl(path, out, header, workers, resume, engine, scheduler, chunk_line
     try:
         for data, first, end, nlines in _jsonl_chunks(path, base["input_offset"],
                                                       base["next_line"], chunk_lines):
-            pending.append((end, first + nlines, executor.submit(process_lines, data, first)))
+            pending.append((end - len(data), end, first + nlines,
+                            executor.submit(process_lines, data, first)))
             while len(pending) >= executor.window:
                 commit(pending.popleft())
         while pending:
@@ -395,6 +428,8 @@ def _run_jsonl(path, out, header, workers, resume, engine, scheduler, chunk_line
         executor.close()
         outfh.close()
         journal.close()
+        if registry is not None:
+            registry.close()
     return Summary(path, "jsonl", files, records, failed, counts, seconds, resumed,
                    engine, workers)
 
@@ -431,7 +466,7 @@ def _run_bulk(path, out, header, workers, resume, engine, scheduler, chunk_size,
     try:
         if resumed:
             try:
-                mm = np.load(res_path, mmap_mode="r")
+                mm = np.load(res_path, mmap_mode="r", allow_pickle=False)
             except (OSError, ValueError) as exc:
                 raise InputError(f"cannot resume: {res_path} is not readable "
                                  f"({_one_line(exc)}); delete it and {journal.path}") from None

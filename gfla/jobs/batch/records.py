@@ -29,7 +29,7 @@ import numpy as np
 from ...errors import GflaError, InputError, MathError
 from .ops import OPERATIONS, run_group
 
-__all__ = ["ChunkResult", "process_lines", "matrix_rows", "vector_entries", "error_object",
+__all__ = ["ChunkResult", "process_lines", "scan_ids", "id_hashes", "matrix_rows", "vector_entries", "error_object",
            "field_of", "limit_threads"]
 
 _HEX = re.compile(r"(?:0[xX])?[0-9a-fA-F]+\Z")
@@ -39,18 +39,44 @@ _PRINTED_AS_JSON = frozenset(("inv", "det", "rank", "nullspace", "order", "power
 
 
 class ChunkResult:
-    """Output of one chunk: the output bytes and the counts for the summary."""
+    """Output of one chunk: the output bytes, the counts for the summary, and the ids.
 
-    __slots__ = ("data", "records", "failed", "kinds")
+    ``ids`` is None or a tuple of four arrays, one entry per record whose line is a
+    JSON object with a valid id: the id's hash (:func:`id_hashes`), its input line, the
+    byte offset of that line in the chunk, and its output line (slot) in ``data``.
+    """
 
-    def __init__(self, data, records, failed, kinds):
+    __slots__ = ("data", "records", "failed", "kinds", "ids")
+
+    def __init__(self, data, records, failed, kinds, ids=None):
         self.data = data
         self.records = records
         self.failed = failed
         self.kinds = kinds
+        self.ids = ids
 
     def __reduce__(self):
-        return (ChunkResult, (self.data, self.records, self.failed, self.kinds))
+        return (ChunkResult, (self.data, self.records, self.failed, self.kinds, self.ids))
+
+
+def id_hashes(rids):
+    """uint64 hashes of ids (strings or integers), computed by one compiled call.
+
+    The integer 1 and the string "1" hash alike: a hash only routes an id to its slot
+    (:mod:`gfla.jobs.batch.ids` compares the ids themselves, types included).
+    """
+    from ...kernels.batch import id_hashes as kernel
+    keys = [r if type(r) is str else str(r) for r in rids]
+    text = "".join(keys)
+    if text.isascii():
+        buf = text.encode("ascii")
+        lengths = [len(k) for k in keys]
+    else:
+        parts = [k.encode("utf-8", "surrogatepass") for k in keys]
+        buf = b"".join(parts)
+        lengths = [len(b) for b in parts]
+    ends = np.cumsum(np.array(lengths, dtype=np.int64)) if keys else np.zeros(0, np.int64)
+    return kernel(np.frombuffer(buf, dtype=np.uint8), ends)
 
 
 _FIELDS = {}
@@ -308,12 +334,26 @@ def process_lines(data, first_line, threads=None):
             gc.enable()
 
 
+def _line_starts(data, lines):
+    """Byte offset in ``data`` of each line of :func:`_lines_of`."""
+    if data.isascii():
+        sizes = [len(t) + 1 for t in lines]
+    else:
+        sizes = [(len(t) if type(t) is bytes else len(t.encode("utf-8", "surrogatepass")))
+                 + 1 for t in lines]
+    return [0, *itertools.accumulate(sizes)]
+
+
 def _process_lines(data, first_line):
     out = _Output()
     slots = out.slots
     groups = {}
     scan = _scan_once
-    for offset, text in enumerate(_lines_of(data)):
+    lines = _lines_of(data)
+    starts = _line_starts(data, lines)
+    ids = ([], [], [])  # per record with an id: the id, its line in the chunk, its slot
+    id_rids, id_lines, id_slots = ids
+    for offset, text in enumerate(lines):
         text = text.strip()
         if not text:
             continue
@@ -327,6 +367,10 @@ def _process_lines(data, first_line):
             _reject(out, slot, text, first_line + offset, None)
             continue
         rid = obj.get("id")
+        if type(rid) is str or type(rid) is int:
+            id_rids.append(rid)
+            id_lines.append(offset)
+            id_slots.append(slot)
         opname = obj.get("op")
         mat = obj.get("matrix")
         if ((type(rid) is str or type(rid) is int) and type(opname) is str
@@ -345,7 +389,80 @@ def _process_lines(data, first_line):
     for (spec, modulus, opname, rows, cols), members in groups.items():
         _run_group_lines(spec, modulus, opname, (rows, cols), members, out)
     failed = sum(out.kinds.values())
-    return ChunkResult("".join(slots).encode("utf-8"), len(slots), failed, dict(out.kinds))
+    return ChunkResult("".join(slots).encode("utf-8"), len(slots), failed, dict(out.kinds),
+                       _id_arrays(ids, starts, first_line))
+
+
+def mark_duplicates(data, found):
+    """Output lines of a chunk with the records whose id was seen before replaced by
+    error lines.
+
+    Parameters
+    ----------
+    data : bytes
+        ``ChunkResult.data``.
+    found : list of (int, int, int)
+        (output slot, input line, line of the first record with that id), as from
+        :meth:`gfla.jobs.batch.ids.IdRegistry.add`.
+
+    Returns
+    -------
+    (bytes, int, Counter)
+        The new lines, the change in the number of failed records and in the failure
+        counts by kind (a count may go down: a record that had failed for another
+        reason now fails as a duplicate).
+    """
+    lines = data.split(b"\n")
+    failed = 0
+    kinds = Counter()
+    for slot, line, first in found:
+        old = json.loads(lines[slot])
+        if "error" in old:
+            kinds[old["error"]["kind"]] -= 1
+        else:
+            failed += 1
+        rid = old["id"]
+        exc = InputError(f"duplicate id {json.dumps(rid)}: the record on line {first} has "
+                         "the same id, so this one is not run")
+        kinds["InputError"] += 1
+        lines[slot] = _error_line(rid, old.get("op"), line, exc)[:-1].encode("utf-8")
+    return b"\n".join(lines), failed, kinds
+
+
+def _id_arrays(ids, starts, first_line):
+    rids, where, slots = ids
+    if not rids:
+        return None
+    where = np.array(where, dtype=np.int64)
+    starts = np.fromiter(starts, dtype=np.int64, count=len(starts))
+    return (id_hashes(rids), where + first_line, starts[where],
+            np.array(slots, dtype=np.int64))
+
+
+def scan_ids(data, first_line, threads=None):
+    """The ``ids`` of :class:`ChunkResult` for a chunk of lines, without running the
+    records (rebuilding the ids of a run that is resumed)."""
+    limit_threads(threads)
+    lines = _lines_of(data)
+    starts = _line_starts(data, lines)
+    ids = ([], [], [])
+    slot = 0
+    for offset, text in enumerate(lines):
+        text = text.strip()
+        if not text:
+            continue
+        try:
+            obj = json.loads(text)
+        except (ValueError, TypeError, RecursionError):
+            obj = None
+        if type(obj) is dict:
+            rid = obj.get("id")
+            if type(rid) is str or type(rid) is int:
+                ids[0].append(rid)
+                ids[1].append(offset)
+                ids[2].append(slot)
+        slot += 1
+    return _id_arrays(ids, starts, first_line)
 
 
 def _reject(out, slot, text, line_no, obj):
