@@ -30,7 +30,7 @@ __all__ = ["cli", "main"]
 
 CONTEXT = {"help_option_names": ["-h", "--help"], "max_content_width": 100}
 INVERSE_METHODS = ["auto", "gauss-jordan", "cayley-hamilton", "hensel", "crt"]
-CHARPOLY_METHODS = ["auto", "hessenberg", "berkowitz", "csanky"]
+CHARPOLY_METHODS = ["auto", "hessenberg", "berkowitz", "csanky", "krylov"]
 
 
 @click.group(cls=GflaGroup, context_settings=CONTEXT)
@@ -362,8 +362,9 @@ def _print_polynomial(name, coefficients, F, hex_text):
 @field_options()
 @matrix_input
 @click.option("--method", type=click.Choice(CHARPOLY_METHODS), default="auto", show_default=True,
-              help="Hessenberg reduction, Berkowitz (division-free, also on Z/n), or Csanky "
-                   "(power sums: needs a characteristic larger than n).")
+              help="Hessenberg reduction, Berkowitz (division-free, also on Z/n), Csanky "
+                   "(power sums: needs a characteristic larger than n), or Krylov "
+                   "(fields; auto picks it for large n).")
 @output_options
 @gfla_command
 def charpoly(field_spec, modulus, matrix_text, input_path, method, hex_text, as_json):

@@ -235,6 +235,16 @@ def test_charpoly_csanky_large_characteristic_against_galois():
     assert "charpoly: x^2 + 2*x + 5" in text
 
 
+def test_charpoly_krylov_method_on_the_command_line():
+    # det(xI - A) for A = [[1,2,3],[4,5,6],[7,8,10]]: trace 16, sum of principal 2x2
+    # minors (5-8) + (10-21) + (50-48) = -12, det -3 (3x3 formula, common practice), so
+    # x^3 - 16x^2 - 12x + 3 = x^3 + 6x^2 + 10x + 3 over GF(11).
+    data = ok_json("charpoly", "--field", "GF(11)", "--method", "krylov",
+                   "1 2 3; 4 5 6; 7 8 10")
+    assert data["charpoly"] == [1, 6, 10, 3]
+    assert_input_error(run("charpoly", "--field", "Z/12", "--method", "krylov", "1 2; 3 4"))
+
+
 def _poly_at_matrix(field, coeffs, A):
     """Horner's rule with galois matrices (common practice)."""
     n = A.shape[0]

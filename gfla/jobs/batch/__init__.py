@@ -1,7 +1,7 @@
 """Batch jobs over vector files: one operation over millions of matrices.
 
 Input is JSON Lines (one record per line, any mix of fields, operations and sizes) or a
-``.npy`` stack with a JSON sidecar; ``FORMATS.md`` beside this file describes both with
+``.npy`` stack with a JSON sidecar; the README's "Batch jobs" section describes both with
 examples. Records of the same field, operation and size are stacked and sent through
 the batched kernels (:mod:`gfla.linalg.batched`), so small matrices go at kernel speed.
 A run streams (flat memory), writes results in input order, journals every chunk
