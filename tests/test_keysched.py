@@ -638,3 +638,28 @@ def test_callable_whose_linear_part_varies_is_refused():
     assert r % 2 == 1
     assert int(cert["f_r(e_i)^f_r(0)"], 16) == wobble(1 << j, r) ^ wobble(0, r)
     assert int(cert["f_0(e_i)^f_0(0)"], 16) == wobble(1 << j, 0) ^ wobble(0, 0)
+
+
+def test_toml_specs_never_import_or_run_code(tmp_path, monkeypatch):
+    """A TOML spec is data: loading one imports nothing and runs nothing, even when its
+    strings look like ``module:function`` or like code (the callable form is the only
+    one that runs user code, as the README says)."""
+    import builtins
+    import importlib
+    import importlib.util
+
+    def refuse(*args, **kwargs):
+        raise AssertionError(f"a TOML spec made gfla import or run code: {args!r}")
+
+    spec = (ROOT / "vectors" / "keysched" / "wrenlock80.toml").read_text()
+    spec = spec.replace('name = "Wrenlock-80 key schedule (invented)"',
+                        'name = "os:system"\ndescription = "__import__(\'os\').system(\'false\')"')
+    path = tmp_path / "os:system.toml"
+    path.write_text(spec)
+    ks.load_schedule(str(path))  # warm: the modules gfla itself needs are imported here
+    monkeypatch.setattr(importlib, "import_module", refuse)
+    monkeypatch.setattr(importlib.util, "spec_from_file_location", refuse)
+    monkeypatch.setattr(builtins, "eval", refuse)
+    monkeypatch.setattr(builtins, "exec", refuse)
+    schedule = ks.load_schedule(str(path))
+    assert schedule.name == "os:system"
