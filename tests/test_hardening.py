@@ -341,3 +341,250 @@ def test_inverses_and_determinants_agree_with_python_ints(spec, n, why):
 def test_inverses_and_all_determinants_agree_with_python_ints(spec, n, why):
     inverted, refused, dets = _inverse_run(spec, n, det_every=1, ring_det_max=1 << 30)
     assert inverted == 200 and refused >= 5 and dets == 200
+
+
+# ------------------------------------------------------------ 2 numba cache faults
+# Each case runs the CLI in a subprocess on a private copy of the package (its own
+# kernel cache, warmed once), with NUMBA_CACHE_DIR and the per-user cache directory
+# (XDG_CACHE_HOME, where numba falls back) pointed into the test's temporary directory:
+# the worktree's own cache is never touched. The command, a 2 x 2 product over GF(7),
+# compiles two kernels.
+CACHE_ARGS = ["mul", "--field", "GF(7)", "1 2; 3 4", "5 6; 0 1"]
+# [[1, 2], [3, 4]] [[5, 6], [0, 1]] = [[5, 8], [15, 22]], mod 7 (Python ints):
+CACHE_OUTPUT = "\n".join(" ".join(str(x % 7) for x in row)
+                         for row in [[1 * 5 + 2 * 0, 1 * 6 + 2 * 1],
+                                     [3 * 5 + 4 * 0, 3 * 6 + 4 * 1]]) + "\n"
+IN_MEMORY = "kernels compile in memory on every run"
+
+
+def _copy_package(dst):
+    """gfla (with its cli package) copied under ``dst``, without any cache."""
+    import shutil
+
+    import gfla.cli
+    src = os.path.dirname(os.path.abspath(gfla.__file__))
+    cli_src = os.path.dirname(os.path.abspath(gfla.cli.__file__))
+    skip = shutil.ignore_patterns("__pycache__", "*.pyc")
+    shutil.copytree(src, dst / "gfla", ignore=skip)
+    if not os.path.isdir(os.path.join(src, "cli")):  # the source layout maps cli/ there
+        shutil.copytree(cli_src, dst / "gfla" / "cli", ignore=skip)
+
+
+def _run_copy(root, args=CACHE_ARGS, env=None, prefix=()):
+    import subprocess
+    import sys
+    full = {k: v for k, v in os.environ.items()
+            if k not in ("NUMBA_CACHE_DIR", "GFLA_DEBUG", "PYTHONPATH")}
+    full.update(PYTHONPATH=str(root), XDG_CACHE_HOME=str(root / "user-cache"))
+    full.update(env or {})
+    cmd = [*prefix, sys.executable, "-c", "from gfla.cli.main import main; main()", *args]
+    return subprocess.run(cmd, cwd=root, env=full, capture_output=True, text=True,
+                          timeout=600)
+
+
+def _tree_cache(root):
+    return root / "gfla" / "kernels" / "__pycache__"
+
+
+def _listing(path):
+    return sorted(os.listdir(path)) if os.path.isdir(path) else None
+
+
+@pytest.fixture(scope="module")
+def warm_package(tmp_path_factory):
+    """A package copy whose kernel cache holds the command's kernels."""
+    import subprocess
+    import sys
+    root = tmp_path_factory.mktemp("warm")
+    _copy_package(root)
+    where = subprocess.run([sys.executable, "-c", "import gfla; print(gfla.__file__)"],
+                           cwd=root, env={**os.environ, "PYTHONPATH": str(root)},
+                           capture_output=True, text=True)
+    assert where.stdout.strip() == str(root / "gfla" / "__init__.py")
+    done = _run_copy(root)
+    assert (done.returncode, done.stdout, done.stderr) == (0, CACHE_OUTPUT, "")
+    names = _listing(_tree_cache(root))
+    assert "gfla-kernels.stamp" in names and any(n.endswith(".nbi") for n in names)
+    return root
+
+
+@pytest.fixture
+def package(warm_package, tmp_path):
+    import shutil
+    root = tmp_path / "pkg"
+    shutil.copytree(warm_package, root)
+    return root
+
+
+def _one_warning(done, pattern):
+    """Exit 0, the right product, and stderr exactly one warning line."""
+    import re
+    assert done.returncode == 0, done.stderr
+    assert done.stdout == CACHE_OUTPUT
+    lines = done.stderr.splitlines()
+    assert len(lines) == 1, done.stderr
+    assert re.fullmatch(pattern, lines[0]), lines[0]
+    return lines[0]
+
+
+def _blocked_path(tmp_path):
+    """A path no process can create: it lies under a regular file (makedirs fails with
+    ENOTDIR even for root)."""
+    blocker = tmp_path / "a-regular-file"
+    blocker.write_text("")
+    return blocker / "cache"
+
+
+def _read_only_method(directory):
+    """How to make ``directory`` read-only for a child process here: ``chmod`` when
+    that stops writes (not for root), else a read-only bind mount in a private mount
+    namespace (``unshare -m``, root), else None."""
+    import shutil
+    import subprocess
+    probe = directory / "write-probe"
+    os.chmod(directory, 0o555)
+    try:
+        probe.write_text("")
+        probe.unlink()
+    except OSError:
+        return "chmod"
+    finally:
+        os.chmod(directory, 0o755)
+    if shutil.which("unshare") and shutil.which("mount"):
+        d = str(directory)
+        test = subprocess.run(["unshare", "-m", "sh", "-c",
+                               f"mount --bind -o ro '{d}' '{d}' && ! touch '{d}/probe'"],
+                              capture_output=True)
+        if test.returncode == 0 and not probe.exists():
+            return "bind"
+    return None
+
+
+def _read_only_prefix(method, dirs):
+    """Command prefix running the child with ``dirs`` read-only (bind method)."""
+    if method != "bind":
+        return ()
+    mounts = " && ".join(f"mount --bind -o ro '{d}' '{d}'" for d in dirs)
+    return ("unshare", "-m", "sh", "-c", mounts + ' && exec "$@"', "sh")
+
+
+def test_read_only_cache_dir_compiles_in_memory_with_one_warning(package, tmp_path):
+    cache = _tree_cache(package)
+    user = tmp_path / "user-cache"
+    user.mkdir()
+    method = _read_only_method(cache)
+    if method is None:  # pragma: no cover - root without mount namespaces
+        pytest.skip("no way to make a directory read-only here (root, no unshare); "
+                    "the not-a-directory case below still runs")
+    before = _listing(cache)
+    if method == "chmod":
+        os.chmod(cache, 0o555)
+        os.chmod(user, 0o555)
+    try:
+        done = _run_copy(package, env={"XDG_CACHE_HOME": str(user)},
+                         prefix=_read_only_prefix(method, [cache, user]))
+    finally:
+        os.chmod(cache, 0o755)
+        os.chmod(user, 0o755)
+    line = _one_warning(done, rf"gfla: warning: numba cache at (.+) is not writable; "
+                              rf"{IN_MEMORY}")
+    assert os.path.samefile(line.split(" at ")[1].split(" is not")[0], cache)
+    assert _listing(cache) == before and _listing(user) == []
+
+
+def test_cache_dir_not_a_directory_compiles_in_memory_with_one_warning(package, tmp_path):
+    import shutil
+    cache = _tree_cache(package)
+    shutil.rmtree(cache)
+    cache.write_text("not a directory\n")
+    done = _run_copy(package, env={"XDG_CACHE_HOME": str(_blocked_path(tmp_path))})
+    line = _one_warning(done, rf"gfla: warning: numba cache at (.+) is not writable; "
+                              rf"{IN_MEMORY}")
+    assert line.split(" at ")[1].split(" is not")[0] == str(cache)
+    assert cache.read_text() == "not a directory\n"
+
+
+def test_unwritable_numba_cache_dir_names_where_kernels_go(package, tmp_path):
+    requested = _blocked_path(tmp_path)
+    done = _run_copy(package, env={"NUMBA_CACHE_DIR": str(requested)})
+    line = _one_warning(done, rf"gfla: warning: numba cache at {requested} "
+                              rf"\(NUMBA_CACHE_DIR\) is not writable; kernels are "
+                              rf"cached at (.+) instead")
+    assert os.path.samefile(line.rsplit(" at ", 1)[1][:-len(" instead")],
+                            _tree_cache(package))
+
+
+def test_unwritable_numba_cache_dir_and_tree_compile_in_memory(package, tmp_path):
+    import shutil
+    shutil.rmtree(_tree_cache(package))
+    _tree_cache(package).write_text("")
+    requested = _blocked_path(tmp_path)
+    done = _run_copy(package, env={"NUMBA_CACHE_DIR": str(requested),
+                                   "XDG_CACHE_HOME": str(requested)})
+    _one_warning(done, rf"gfla: warning: numba cache at {requested} is not writable; "
+                       rf"{IN_MEMORY}")
+
+
+def test_numba_cache_dir_gets_the_source_stamp(package, tmp_path):
+    """With NUMBA_CACHE_DIR set numba caches there, and the stale-kernel guard (the
+    digest of the kernel sources) works there too."""
+    nc = tmp_path / "numba-cache"
+    nc.mkdir()
+    tree_before = _listing(_tree_cache(package))
+    done = _run_copy(package, env={"NUMBA_CACHE_DIR": str(nc)})
+    assert (done.returncode, done.stdout, done.stderr) == (0, CACHE_OUTPUT, "")
+    (sub,) = os.listdir(nc)
+    names = os.listdir(nc / sub)
+    assert any(n.endswith(".nbi") for n in names)
+    stamp = nc / sub / "gfla-kernels.stamp"
+    tree_stamp = (_tree_cache(package) / "gfla-kernels.stamp").read_text()
+    assert stamp.read_text() == tree_stamp
+    assert _listing(_tree_cache(package)) == tree_before
+    # an older digest: every cached kernel there is dropped, the stamp rewritten
+    stamp.write_text("0" * 64 + "\n")
+    stale = nc / sub / "modular.stale_kernel-1.py311.nbi"
+    stale.write_bytes(b"from an older source")
+    done = _run_copy(package, env={"NUMBA_CACHE_DIR": str(nc)})
+    assert (done.returncode, done.stdout, done.stderr) == (0, CACHE_OUTPUT, "")
+    assert not stale.exists() and stamp.read_text() == tree_stamp
+
+
+def test_per_user_cache_fallback_is_quiet_and_stamped(package, tmp_path):
+    """numba's own fallback (an unusable package cache, a writable per-user cache) is
+    not a fault: no warning, and the digest guard follows the kernels there."""
+    import shutil
+    shutil.rmtree(_tree_cache(package))
+    _tree_cache(package).write_text("")
+    user = tmp_path / "user-cache"
+    done = _run_copy(package, env={"XDG_CACHE_HOME": str(user)})
+    assert (done.returncode, done.stdout, done.stderr) == (0, CACHE_OUTPUT, "")
+    (sub,) = os.listdir(user / "numba")
+    names = os.listdir(user / "numba" / sub)
+    assert "gfla-kernels.stamp" in names and any(n.endswith(".nbi") for n in names)
+
+
+def _garbage(path):
+    path.write_bytes(bytes(range(256)) * 3)
+
+
+def _truncate(path):
+    data = path.read_bytes()
+    path.write_bytes(data[:max(1, len(data) // 3)])
+
+
+@pytest.mark.parametrize("suffix,damage", [(".nbi", _garbage), (".nbi", _truncate),
+                                           (".nbc", _truncate), (".nbc", _garbage)],
+                         ids=["garbage-index", "truncated-index", "truncated-data",
+                              "garbage-data"])
+def test_corrupt_cache_files_are_recompiled_with_one_warning(package, suffix, damage):
+    cache = _tree_cache(package)
+    hit = [cache / n for n in os.listdir(cache) if n.endswith(suffix)]
+    assert hit
+    for path in hit:
+        damage(path)
+    done = _run_copy(package)
+    _one_warning(done, r"gfla: warning: numba cache at (.+) holds an unreadable file "
+                       r"\(\w+\); its kernels are recompiled and the cache rewritten")
+    # the cache was rewritten: the next run is clean
+    done = _run_copy(package)
+    assert (done.returncode, done.stdout, done.stderr) == (0, CACHE_OUTPUT, "")
