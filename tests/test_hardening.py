@@ -588,3 +588,23 @@ def test_corrupt_cache_files_are_recompiled_with_one_warning(package, suffix, da
     # the cache was rewritten: the next run is clean
     done = _run_copy(package)
     assert (done.returncode, done.stdout, done.stderr) == (0, CACHE_OUTPUT, "")
+
+
+# ------------------------------------------------------------------ 3 determinism
+def test_freivalds_check_is_seeded():
+    """A wrong X that one random vector over GF(2) catches with probability 1/2: the
+    default seed gives the same verdict on every call, and so does an explicit seed;
+    over the seeds the verdict varies (the check is random, just reproducible)."""
+    from gfla.linalg import inverse
+    F = gfla.field("GF(2)")
+    n = 16
+    U = np.eye(n, dtype=np.uint64)
+    X = np.eye(n, dtype=np.uint64)
+    X[0, 1] = 1  # U X - I has rank 1: (U X - I) r = r_1 e_0
+    verdicts = {inverse.freivalds(F, U, X, rounds=1) for _ in range(20)}
+    assert len(verdicts) == 1
+    for seed in (1, 2, 3):
+        assert len({inverse.freivalds(F, U, X, rounds=1, seed=seed) for _ in range(5)}) == 1
+    assert {inverse.freivalds(F, U, X, rounds=1, seed=s) for s in range(40)} == {True, False}
+    # a right inverse always passes
+    assert inverse.freivalds(F, U, np.eye(n, dtype=np.uint64), seed=None)
