@@ -206,8 +206,10 @@ def _seed(spec, salt):
 
 
 # ------------------------------------------------------------------ 1a products
-def _check_product(F, n, A, B):
-    C = F.matmul(_to_gfla(A), _to_gfla(B))
+def _check_product(F, n, A, B, dtype=np.uint64):
+    """gfla's product against Python ints; ``dtype`` is that of the arrays handed to
+    gfla (int64 takes PrimeField.matmul's one-pass conversion, uint64 the other)."""
+    C = F.matmul(np.array(A.tolist(), dtype=dtype), np.array(B.tolist(), dtype=dtype))
     assert _ints(C) == _ref_matmul(A, B, n)
     return C.size
 
@@ -225,10 +227,15 @@ def test_products_agree_with_python_ints(spec, n, why, monkeypatch):
     checked = 0
     for m, k, c in PRODUCT_SHAPES:
         checked += _check_product(F, n, _draw(rng, n, (m, k)), _draw(rng, n, (k, c)))
-    # the largest sums the planner allows: every entry n - 1
-    for k in (100, 300):
-        full = np.full((30, k), n - 1, dtype=object)
-        checked += _check_product(F, n, full, full.T.copy())
+    if n < 1 << 63:
+        checked += _check_product(F, n, _draw(rng, n, (50, 100)), _draw(rng, n, (100, 50)),
+                                  dtype=np.int64)
+    # the largest sums the planner allows, over each inner dimension: every entry n - 1,
+    # and n - 2 (odd for odd n, so a rounded float64 sum cannot hide in trailing zeros)
+    for k in (100, 300, 600):
+        for top in (n - 1, n - 2):
+            full = np.full((16, k), top, dtype=object)
+            checked += _check_product(F, n, full, full.T.copy())
     # Strassen-Winograd levels on the float64 leaves, odd sizes (peeled rows, columns
     # and the rank-one term): the cutoff is lowered so an affordable size crosses it;
     # the planner still limits the levels to those that stay exact.
@@ -572,10 +579,11 @@ def _truncate(path):
     path.write_bytes(data[:max(1, len(data) // 3)])
 
 
-@pytest.mark.parametrize("suffix,damage", [(".nbi", _garbage), (".nbi", _truncate),
-                                           (".nbc", _truncate), (".nbc", _garbage)],
-                         ids=["garbage-index", "truncated-index", "truncated-data",
-                              "garbage-data"])
+@pytest.mark.parametrize("suffix,damage", [
+    (".nbi", _garbage), (".nbc", _truncate),
+    pytest.param(".nbi", _truncate, marks=pytest.mark.slow),
+    pytest.param(".nbc", _garbage, marks=pytest.mark.slow)],
+    ids=["garbage-index", "truncated-data", "truncated-index", "garbage-data"])
 def test_corrupt_cache_files_are_recompiled_with_one_warning(package, suffix, damage):
     cache = _tree_cache(package)
     hit = [cache / n for n in os.listdir(cache) if n.endswith(suffix)]
@@ -654,7 +662,7 @@ def test_mixing_search_same_seed_same_bytes(tmp_path):
 
 @pytest.mark.parametrize("args", [
     ["mixing", "analyze", "--field", "GF(2^4)", "--modulus", "0x13", "--circulant",
-     "2,3,1,1", "--seed", "3", "--json"],
+     "2,3,1,1", "--seed", "3", "--bp-runs", "3", "--json"],
     ["keysched", "analyze", "simon32-64", "--seed", "0x2a", "--json"],
     ["keysched", "rounds", "wrenlock-80", "--key", "0x0123456789abcdef0123", "-r",
      "100..103", "--json"],
@@ -667,6 +675,7 @@ def test_seeded_commands_repeat_exactly(args, tmp_path):
         assert first == second
 
 
+@pytest.mark.slow  # two full demo runs; the Freivalds and search checks above run in CI
 def test_demo_repeats_exactly(tmp_path):
     """The demo's random choices (its invented key, Freivalds' vectors, the XOR
     heuristics' ties) are all seeded: the text report is byte-identical but for the one
