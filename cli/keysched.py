@@ -34,6 +34,33 @@ def _state_bits_option(function):
                           "attribute.")(function)
 
 
+# The default is the schedule module's PROBE_SEED; it is not imported here so that
+# ``gfla --help`` stays free of numpy (tests/test_hardening.py checks the two agree).
+_PROBE_SEED_TEXT = "0x6b73636864"
+
+
+def _seed_option(function):
+    return click.option(
+        "--seed", "seed_text", default=None, metavar="N",
+        help="Seed of the random pairs and points that check the schedule is affine, "
+             f"decimal or 0x hex (default {_PROBE_SEED_TEXT}); the same seed gives the "
+             "same check, e.g. --seed 0x2a.")(function)
+
+
+def _seed(seed_text):
+    from gfla.jobs.keysched.schedule import PROBE_SEED
+    if seed_text is None:
+        return PROBE_SEED
+    try:
+        seed = int(seed_text.replace("_", ""), 0)
+    except ValueError:
+        seed = -1
+    if not 0 <= seed < 1 << 63:
+        raise click.BadParameter(f"{seed_text!r} is not an integer 0 .. 2^63 - 1",
+                                 param_hint="'--seed'")
+    return seed
+
+
 def _json_option(function):
     return click.option("--json", "as_json", is_flag=True,
                         help="Print one JSON object instead of text.")(function)
@@ -74,9 +101,9 @@ def _refusals(function):
     return wrapper
 
 
-def _load(spec, state_bits):
+def _load(spec, state_bits, seed_text=None):
     from gfla.jobs import keysched
-    return keysched.load_schedule(spec, state_bits=state_bits)
+    return keysched.load_schedule(spec, state_bits=state_bits, seed=_seed(seed_text))
 
 
 def _parse_round(text, what="round"):
@@ -124,9 +151,10 @@ def keysched():
 @click.option("--only", is_flag=True, help="Print only the last round's key.")
 @click.option("--states", "with_states", is_flag=True, help="Print the states as well.")
 @_state_bits_option
+@_seed_option
 @_json_option
 @_refusals
-def rounds(spec, key_text, rounds_text, only, with_states, state_bits, as_json):
+def rounds(spec, key_text, rounds_text, only, with_states, state_bits, seed_text, as_json):
     """Round keys of the rounds asked for.
 
     Any round is fast: round 2^64 costs one power of x modulo the characteristic
@@ -142,7 +170,7 @@ def rounds(spec, key_text, rounds_text, only, with_states, state_bits, as_json):
     from gfla.jobs.keysched import bits as B
     from gfla.jobs.keysched import report
 
-    sched = _load(spec, state_bits)
+    sched = _load(spec, state_bits, seed_text)
     key = B.parse_hex(key_text, sched.n, "key")
     first, last = _parse_range(rounds_text)
     if only:
@@ -166,9 +194,10 @@ def rounds(spec, key_text, rounds_text, only, with_states, state_bits, as_json):
               show_default=True, metavar="S",
               help="Time budget for factoring 2^d - 1 (exact periods need it).")
 @_state_bits_option
+@_seed_option
 @_json_option
 @_refusals
-def analyze(spec, up_to, factor_seconds, state_bits, as_json):
+def analyze(spec, up_to, factor_seconds, state_bits, seed_text, as_json):
     """Invertibility, polynomial structure, periods and weak keys.
 
     Reports the state size, whether the update is affine (a schedule that is not is
@@ -187,7 +216,7 @@ def analyze(spec, up_to, factor_seconds, state_bits, as_json):
     from gfla.jobs import keysched as ks
     from gfla.jobs.keysched import report
 
-    sched = _load(spec, state_bits)
+    sched = _load(spec, state_bits, seed_text)
     result = ks.analyze(sched, up_to=up_to, factor_seconds=factor_seconds)
     if as_json:
         click.echo(json.dumps(jsonable(report.analysis_json(result))))
@@ -213,9 +242,10 @@ BIT 0 is the least significant bit of the round key.""")
 @click.option("--known", "known_path", metavar="FILE", default=None,
               help="Known round-key bits ('ROUND BIT VALUE' lines); '-' reads stdin.")
 @_state_bits_option
+@_seed_option
 @_json_option
 @_refusals
-def recover(spec, round_text, round_key_text, known_path, state_bits, as_json):
+def recover(spec, round_text, round_key_text, known_path, state_bits, seed_text, as_json):
     """The master key from a round key or from known round-key bits.
 
     Solves the linear system over GF(2). When the bits do not determine the key, prints
@@ -238,7 +268,7 @@ def recover(spec, round_text, round_key_text, known_path, state_bits, as_json):
         raise click.UsageError("give --known FILE, or --round with --round-key, not both")
     if known_path is None and (round_text is None or round_key_text is None):
         raise click.UsageError("give --round R with --round-key HEX, or --known FILE")
-    sched = _load(spec, state_bits)
+    sched = _load(spec, state_bits, seed_text)
     if known_path == "-":
         text = sys.stdin.read()
         known = ks.parse_known_bits(text, sched.key_bits, "<stdin>", sched.check_round)

@@ -139,6 +139,9 @@ def _cells_text(values, F, hex_text, cell):
               help="Print the optimized XOR program (one two-input XOR per line).")
 @click.option("--xor-seconds", type=float, default=20.0, show_default=True,
               help="No new Boyar-Peralta run starts after this many seconds.")
+@click.option("--seed", type=click.IntRange(0, (1 << 31) - 1), default=0, show_default=True,
+              help="Seed of the random tie-breaking runs of the XOR heuristics; the same "
+                   "seed gives the same programs, e.g. --seed 7.")
 @click.option("--bp-runs", type=click.IntRange(1, 1000), default=8, show_default=True,
               help="Boyar-Peralta runs (the first with fixed ties, then random ties).")
 @click.option("--progress/--no-progress", default=None,
@@ -150,7 +153,7 @@ def _cells_text(values, F, hex_text, cell):
 @gfla_command
 def analyze(field_spec, modulus, matrix_text, input_path, circulant, hadamard, cauchy,
             vandermonde, companion, exponent, cell_size, requirements, skipped,
-            show_program, xor_seconds, bp_runs, progress, hex_text, as_json):
+            show_program, xor_seconds, seed, bp_runs, progress, hex_text, as_json):
     """Everything about one mixing matrix, each property with how it was decided.
 
     Invertibility and inverse, involutory, orthogonal, order, characteristic and
@@ -195,7 +198,7 @@ def analyze(field_spec, modulus, matrix_text, input_path, circulant, hadamard, c
         skip.add("program")
     try:
         report = mx.analyze_layer(F, M, cell_size=cell_size, skip=skip, xor_seconds=xor_seconds,
-                            bp_runs=bp_runs, progress=update)
+                            bp_runs=bp_runs, progress=update, seed=seed)
     finally:
         close()
     failed = _failed_requirements(report, requirements)
@@ -345,6 +348,9 @@ def _analysis_text(F, M, report, hex_text):
               help="Survivors (lowest naive count first) that get an optimized count.")
 @click.option("--refine", type=click.IntRange(0), default=20, show_default=True,
               help="Best survivors by Paar's count that also get Boyar-Peralta runs.")
+@click.option("--seed", type=click.IntRange(0, (1 << 31) - 1), default=0, show_default=True,
+              help="Seed of the random tie-breaking runs that rank the survivors by XOR "
+                   "count; the same seed gives the same ranking, e.g. --seed 7.")
 @click.option("-o", "--output", "output", metavar="FILE", default=None,
               help="Write the best matrices as JSON Lines to FILE ('-' for stdout).")
 @click.option("--estimate-only", is_flag=True,
@@ -357,7 +363,7 @@ def _analysis_text(F, M, report, hex_text):
               help="Print one JSON object (summary and best matrices) instead of text.")
 @gfla_command
 def search(field_spec, modulus, family, n, entries, requirement, branch, involutory,
-           all_equivalent, power, keep, rank_limit, refine, output, estimate_only,
+           all_equivalent, power, keep, rank_limit, refine, seed, output, estimate_only,
            progress, hex_text, as_json):
     """Enumerate a family of matrices, keep the good ones, rank them by XOR count.
 
@@ -401,7 +407,7 @@ def search(field_spec, modulus, family, n, entries, requirement, branch, involut
         result = mx.search_family(F, family, n, values, require=require, branch=branch,
                            involutory=involutory, canonical=canonical, power=power,
                            keep=keep, rank_limit=rank_limit, refine=refine,
-                           progress=update)
+                           progress=update, seed=seed)
     finally:
         close()
     if output is not None:

@@ -304,7 +304,7 @@ def _verified(bits, xors, outputs):
 
 
 def xor_count(bits, bp_runs=8, seconds=20.0, paar_runs=8, program=False, bp=True,
-              node_budget=None):
+              node_budget=None, seed=0):
     """Naive and optimized XOR counts of a binary matrix (the linear map y = B x).
 
     Parameters
@@ -312,7 +312,7 @@ def xor_count(bits, bp_runs=8, seconds=20.0, paar_runs=8, program=False, bp=True
     bits : array_like of 0/1, shape (r, c), r and c at most 64 for the optimized count
     bp_runs : int
         Runs of the Boyar-Peralta heuristic: the first breaks ties deterministically,
-        the others at random (seeds 1, 2, ...).
+        the others at random (seeds 1, 2, ... for ``seed`` 0).
     seconds : float
         No new Boyar-Peralta run starts after this much time (the first always runs).
     paar_runs : int
@@ -325,6 +325,9 @@ def xor_count(bits, bp_runs=8, seconds=20.0, paar_runs=8, program=False, bp=True
         Sets of base elements searched per target and step by the Boyar-Peralta
         heuristic (default: 200 000, less above 32 outputs); distances are exact while
         the budget covers them, upper bounds otherwise.
+    seed : int
+        Seed of the random tie-breaking runs of both heuristics (0 <= seed < 2^31): run
+        i >= 1 uses ``i + seed * 2^32``; the same seed gives the same programs.
 
     Returns
     -------
@@ -360,8 +363,8 @@ def xor_count(bits, bp_runs=8, seconds=20.0, paar_runs=8, program=False, bp=True
         return out
     best = None
     paar_best = None
-    for seed in range(max(1, paar_runs)):
-        xors, outs = engine.paar(bits, seed=seed)
+    for run in range(max(1, paar_runs)):
+        xors, outs = engine.paar(bits, seed=_run_seed(seed, run))
         if paar_best is None or len(xors) < len(paar_best[0]):
             paar_best = (xors, outs)
     candidates = [("paar", paar_best[0], paar_best[1])]
@@ -369,10 +372,10 @@ def xor_count(bits, bp_runs=8, seconds=20.0, paar_runs=8, program=False, bp=True
     bp_exact = None
     if bp:
         start = time.perf_counter()
-        for seed in range(max(1, bp_runs)):
-            if seed and time.perf_counter() - start > seconds:
+        for run in range(max(1, bp_runs)):
+            if run and time.perf_counter() - start > seconds:
                 break
-            xors, outs, exact = engine.boyar_peralta(bits, seed=seed,
+            xors, outs, exact = engine.boyar_peralta(bits, seed=_run_seed(seed, run),
                                                      node_budget=node_budget)
             if bp_best is None or len(xors) < len(bp_best[0]):
                 bp_best = (xors, outs)
@@ -391,6 +394,13 @@ def xor_count(bits, bp_runs=8, seconds=20.0, paar_runs=8, program=False, bp=True
         out["program"] = {"inputs": c, "xors": [list(p) for p in best[1]],
                           "outputs": list(best[2])}
     return out
+
+
+def _run_seed(seed, run):
+    """Kernel seed of heuristic run ``run`` (0: the deterministic tie-breaking)."""
+    if not 0 <= int(seed) < 1 << 31:
+        raise InputError(f"the seed must be 0 .. 2^31 - 1, got {seed}")
+    return 0 if run == 0 else run + (int(seed) << 32)
 
 
 def format_program(program):
@@ -420,7 +430,8 @@ def _attempt(fn):
         return None, {"refused": str(exc), "kind": type(exc).__name__, "certificate": cert}
 
 
-def analyze_layer(F, M, cell_size=None, skip=(), xor_seconds=20.0, bp_runs=8, progress=None):
+def analyze_layer(F, M, cell_size=None, skip=(), xor_seconds=20.0, bp_runs=8, progress=None,
+                  seed=0):
     """Everything about a square mixing matrix, each property with how it was decided.
 
     Parameters
@@ -433,7 +444,7 @@ def analyze_layer(F, M, cell_size=None, skip=(), xor_seconds=20.0, bp_runs=8, pr
         Parts to leave out: ``"order"``, ``"branch"``, ``"xor"`` (the optimized XOR
         program; the naive count stays), ``"minor-counts"`` (stop the MDS decision at
         the first singular minor). ``"program"`` in ``skip`` drops the XOR list only.
-    xor_seconds, bp_runs : see :func:`xor_count`
+    xor_seconds, bp_runs, seed : see :func:`xor_count`
     progress : callable, optional
         For the MDS decision: ``progress(done, total)``.
 
@@ -546,7 +557,7 @@ def analyze_layer(F, M, cell_size=None, skip=(), xor_seconds=20.0, bp_runs=8, pr
                                "optimized": None, "note": "optimized count skipped"}
     else:
         report["xor_count"] = xor_count(bits, bp_runs=bp_runs, seconds=xor_seconds,
-                                        program="program" not in skip)
+                                        program="program" not in skip, seed=seed)
     return report
 
 

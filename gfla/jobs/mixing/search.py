@@ -173,7 +173,7 @@ def estimate(F, family, n, values, require="mds", branch=None, involutory=False,
 
 def search_family(F, family, n, values, require="mds", branch=None, involutory=False,
            canonical=True, power=None, keep=10, rank_limit=2000, refine=20,
-           bp_runs=2, progress=None):
+           bp_runs=2, progress=None, seed=0):
     """Enumerate a family, keep the candidates meeting the requirement, rank them by
     optimized XOR count.
 
@@ -205,6 +205,10 @@ def search_family(F, family, n, values, require="mds", branch=None, involutory=F
         Boyar-Peralta runs for each refined survivor.
     progress : callable, optional
         ``progress(done, total)`` after each chunk of candidates.
+    seed : int
+        Seed of the random tie-breaking runs of the XOR heuristics (see
+        :func:`~gfla.jobs.mixing.analyze.xor_count`). Every Boyar-Peralta run is made
+        (no time budget), so the same seed gives the same result on any machine.
 
     Returns
     -------
@@ -266,7 +270,8 @@ def search_family(F, family, n, values, require="mds", branch=None, involutory=F
     best = []
     for i, r in enumerate(ranked):
         if i < refine:
-            cost = xor_count(r["bits"], bp_runs=bp_runs, paar_runs=4, program=True)
+            cost = xor_count(r["bits"], bp_runs=bp_runs, paar_runs=4, program=True,
+                             seconds=math.inf, seed=seed)
         else:
             cost = xor_count(r["bits"], bp=False, paar_runs=1, program=True)
         best.append({"index": r["index"], "params": r["params"], "matrix": r["matrix"].tolist(),
@@ -280,6 +285,7 @@ def search_family(F, family, n, values, require="mds", branch=None, involutory=F
         "family": family, "n": n, "field": F.spec, "modulus": int(F.modulus),
         "entries": vals, "require": require, "branch": branch, "involutory": involutory,
         "power": (n if power is None else int(power)) if family == "companion" else None,
+        "seed": seed,
         "candidates": total, "tested": tested, "equivalent_skipped": skipped,
         "kept": int(len(kept_idx)), "ranked": len(ranked),
         "seconds": time.perf_counter() - t0, "scan_seconds": scan_seconds,
