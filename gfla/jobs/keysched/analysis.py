@@ -265,6 +265,10 @@ def analyze(sched, up_to=None, factor_seconds=DEFAULT_FACTOR_SECONDS):
     """
     t0 = time.perf_counter()
     n = sched.n
+    from ...limits import Workspace
+    # beside M: the identity, M^r, M^r + I and its copy for elimination in the fixed
+    # spaces, n x n 0/1 bytes each (poly_at_matrix holds about 2 sqrt(deg) more)
+    Workspace(f"analysis of the {n}-bit schedule {sched.name}").add(4, (n, n), 1).check()
     up_to = DEFAULT_UP_TO if up_to is None else int(up_to)
     if sched.round_limit is not None:
         up_to = min(up_to, sched.round_limit)

@@ -458,6 +458,7 @@ def from_spec(spec, seed=PROBE_SEED):
     def f_round(S, rounds):
         return spec.evaluate(np.asarray(S, dtype=np.uint8), seq_values_for_rounds(rounds))
 
+    _check_probe_memory(spec.name or "spec", n_in)
     probes = np.zeros((n_in + 1, n_in), dtype=np.uint8)
     probes[1:] = np.eye(n_in, dtype=np.uint8)
     out = combined(probes)
@@ -550,6 +551,13 @@ def _takes_round(fn):
     return len(params) >= 2 or "round" in sig.parameters
 
 
+def _check_probe_memory(name, n):
+    """Refuse a state too large to probe: the n + 1 probe states, the states they map
+    to and the matrix read off them are n + 1 x n 0/1 bytes each (``gfla.limits``)."""
+    from ...limits import Workspace
+    Workspace(f"{name}: linearising a {n}-bit state").add(3, (n + 1, n), 1).check()
+
+
 def from_callable(fn, state_bits=None, name=None, seed=PROBE_SEED):
     """Linearise a Python callable mapping a state to the next.
 
@@ -603,6 +611,7 @@ def from_callable(fn, state_bits=None, name=None, seed=PROBE_SEED):
     def f_round(S, rounds):
         return np.array([call(s, int(r)) for s, r in zip(S, rounds)], dtype=np.uint8)
 
+    _check_probe_memory(name, n)
     probes = np.zeros((n + 1, n), dtype=np.uint8)
     probes[1:] = np.eye(n, dtype=np.uint8)
     out = f_round(probes, np.zeros(n + 1, dtype=np.int64))
