@@ -7,9 +7,9 @@ n x n work matrices alive. Each of these is checked here, in O(1), against the m
 the machine has available, and refused with an :class:`~gfla.errors.InputError` that
 carries the estimate::
 
-    inverse of a 200000 x 200000 matrix over GF(2305843009213693951) needs 960 GB
-    (3 matrices of 200000 x 200000 entries, 8 bytes each), more than the 24.8 GB of
-    memory available (MemAvailable in /proc/meminfo); 1 GB = 10^9 bytes
+    inverse of a 200000 x 200000 matrix over GF(2305843009213693951) needs 1.6 TB
+    (5 matrices of 200000 x 200000 entries, 8 bytes each), more than the 23.9 GB of
+    memory available (MemAvailable in /proc/meminfo); decimal units, 1 TB = 10^12 bytes
 
 Sizes in messages are decimal (1 kB = 10^3 bytes, 1 MB = 10^6, 1 GB = 10^9,
 1 TB = 10^12). An estimate counts the arrays an operation keeps alive at its peak
@@ -258,13 +258,13 @@ class Workspace:
                           f"{_entry_text(bytes_each)}")
         return "; ".join(pieces)
 
-    def check(self):
+    def check(self, hint=None):
         """Raise :class:`InputError` with the estimate when it exceeds the available
         memory; return the estimate in bytes otherwise."""
-        return check_memory(self.nbytes, self.what, self.describe())
+        return check_memory(self.nbytes, self.what, self.describe(), hint)
 
 
-def check_memory(nbytes, what, detail=None):
+def check_memory(nbytes, what, detail=None, hint=None):
     """Refuse ``what`` when it needs more than the available memory.
 
     Parameters
@@ -275,6 +275,8 @@ def check_memory(nbytes, what, detail=None):
         What needs it (``"inverse of a 3 x 3 matrix over GF(7)"``); starts the message.
     detail : str, optional
         How the estimate is made up, shown in parentheses.
+    hint : str, optional
+        What would need less, appended to the message.
 
     Returns
     -------
@@ -285,18 +287,19 @@ def check_memory(nbytes, what, detail=None):
     ------
     InputError
         ``"<what> needs 320 GB (<detail>), more than the 24 GB of memory available
-        (<source>); 1 GB = 10^9 bytes"``.
+        (<source>); decimal units, 1 GB = 10^9 bytes"``.
     """
     available, source = available_memory()
     if available is None or nbytes <= available:
         return nbytes
-    unit = format_bytes(max(nbytes, available)).split()[-1]
+    unit = format_bytes(nbytes).split()[-1]
     scale = {"kB": "1 kB = 10^3", "MB": "1 MB = 10^6", "GB": "1 GB = 10^9",
              "TB": "1 TB = 10^12", "PB": "1 PB = 10^15", "EB": "1 EB = 10^18"}.get(unit)
-    tail = f"; {scale} bytes" if scale else ""
+    tail = f"; decimal units, {scale} bytes" if scale else ""
     inner = f" ({detail})" if detail else ""
     raise InputError(f"{what} needs {format_bytes(nbytes)}{inner}, more than the "
-                     f"{format_bytes(available)} of memory available ({source}){tail}")
+                     f"{format_bytes(available)} of memory available ({source}){tail}"
+                     + (f"; {hint}" if hint else ""))
 
 
 def check_matrices(what, count, shape, bytes_each):

@@ -98,7 +98,7 @@ def test_check_memory_message_and_boundary(monkeypatch):
     assert message == ("n = 200000 over GF(2^61-1) needs 320 GB (one matrix of "
                        "200000 x 200000 entries, 8 bytes each), more than the 24 GB of "
                        "memory available (GFLA_MEMORY_LIMIT=24000000000); "
-                       "1 GB = 10^9 bytes")
+                       "decimal units, 1 GB = 10^9 bytes")
     set_limit(monkeypatch, need)          # exactly the estimate: allowed
     assert limits.check_matrices("x", 1, (200000, 200000), 8) == need
     set_limit(monkeypatch, need - 1)
@@ -188,6 +188,19 @@ def test_identity_zeros_random_are_checked(monkeypatch):
     estimate_in(refused(F.random, (300, 300), seed=1), count * 300 * 300 * 8)
     set_limit(monkeypatch, 2 * 300 * 300 * 8)
     assert F.identity(300).shape == (300, 300)
+
+
+def test_asarray_copies_are_checked(monkeypatch):
+    # the validated copy (uint64, or uint8 for GF(2)) and the returned one
+    A = np.ones((500, 500), dtype=np.int64)
+    for spec, need in (("GF(7)", 500 * 500 * (8 + 8)), ("GF(2)", 500 * 500 * (1 + 1))):
+        F = gfla.field(spec)
+        set_limit(monkeypatch, need - 1)
+        message = refused(F.asarray, A)
+        estimate_in(message, need)
+        assert "validating the 500 x 500 matrix" in message
+        set_limit(monkeypatch, need)
+        assert F.asarray(A).shape == (500, 500)
 
 
 def test_elementwise_broadcast_to_a_larger_result(monkeypatch):

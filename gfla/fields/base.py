@@ -75,7 +75,17 @@ class Field:
             When ``A`` is not an integer array of the expected number of dimensions, or
             an entry lies outside 0 .. order-1 (the message names row and column).
         """
+        if isinstance(A, np.ndarray) and A.size:
+            from .. import limits
+            w = limits.Workspace(f"validating the {' x '.join(map(str, A.shape))} {name} "
+                                 f"over {self.spec}")
+            w.add(1, A.shape, self._validate_dtype().itemsize, "validated array")
+            w.add(1, A.shape, self.dtype.itemsize, "returned array").check()
         return self._out(self._validate(A, name, ndim))
+
+    def _validate_dtype(self):
+        """dtype of the internal (validated) arrays."""
+        return np.dtype(np.uint64)
 
     def _validate(self, A, name="matrix", ndim=2):
         """Validate and convert to the internal uint64 representation."""
@@ -154,8 +164,9 @@ class Field:
         return figure, self._WORKSPACE_BYTES
 
     def _check_product(self, a_shape, b_shape):
-        """The memory check of a product (m x k)(k x n): ``_WORKSPACE["matmul"]`` arrays
-        of each of A, B and the m x n product."""
+        """The memory check of a product (m x k)(k x n): ``_WORKSPACE["matmul_out"]``
+        arrays of the size of the m x n product and ``_WORKSPACE["matmul_in"]`` of the
+        size of each factor."""
         from .. import limits
         m, k = int(a_shape[0]), int(a_shape[1])
         k2, n = int(b_shape[0]), int(b_shape[1])
@@ -164,11 +175,10 @@ class Field:
         c_in, b_in = self._workspace("matmul_in")
         c_out, b_out = self._workspace("matmul_out")
         w = limits.Workspace(f"product of a {m} x {k} and a {k} x {n} matrix over {self.spec}")
-        w.add(c_out, (m, n), b_out, "product-size array")
-        if (m, k) == (k, n) == (m, n) and b_in == b_out:
-            w.parts[-1:] = []
+        if m == k == n and b_in == b_out:
             w.add(c_out + 2 * c_in, (m, n), b_out)
         else:
+            w.add(c_out, (m, n), b_out, "product-size array")
             w.add(c_in, (m, k), b_in, "left-factor-size array")
             w.add(c_in, (k, n), b_in, "right-factor-size array")
         w.check()
@@ -501,7 +511,8 @@ _OPERATION_NAMES = {"inv": "inverse", "det": "determinant", "rank": "rank",
                     "rref": "row echelon form", "nullspace": "nullspace",
                     "solve": "solving a system", "charpoly": "characteristic polynomial",
                     "minpoly": "minimal polynomial", "power": "power",
-                    "order": "multiplicative order", "poly_eval_matrix": "polynomial at",
+                    "order": "multiplicative order",
+                    "poly_eval_matrix": "polynomial evaluation",
                     "random": "random matrix", "matmul": "product", "copy": "power"}
 
 

@@ -53,6 +53,9 @@ class BinaryField(Field):
     def _identity(self, n):
         return np.eye(n, dtype=np.uint8)
 
+    def _validate_dtype(self):
+        return np.dtype(np.uint8)
+
     @staticmethod
     def _pack(A):
         from ..kernels import binary

@@ -237,7 +237,8 @@ def open_bulk(path, chunk_size=None, workers=1, remote_workers=False):
         F._check_workspace(_FIELD_WORKSPACE[opname], (m, n),
                            f"{path}: op {opname!r} on one {m} x {n} matrix over {F.spec}")
     if chunk_size is not None:
-        chunk_workspace(bulk, chunk_size, workers, remote_workers).check()
+        chunk_workspace(bulk, chunk_size, workers, remote_workers).check(
+            "fewer matrices per chunk, or fewer workers, need less")
     return bulk
 
 

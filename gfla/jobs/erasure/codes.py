@@ -200,7 +200,8 @@ def generator_matrix(F, k, m, construction="vandermonde"):
                   else "the points x_i = k+i and y_j = j")
         raise InputError(f"k + m = {k + m} shards is more than {F.spec} allows: the "
                          f"{construction} construction needs k + m distinct field elements "
-                         f"({points}) and {F.spec} has {F.size}, so k + m <= {F.size}"
+                         f"({points}) but {F.spec} has only {F.size} elements, so "
+                         f"k + m <= {F.size}"
                          + (f" (with m = {m}: k <= {F.size - m})" if m < F.size else ""))
     from ...limits import Workspace, format_bytes
     if (k + m) * k > MAX_GENERATOR_ENTRIES:
