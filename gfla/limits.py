@@ -314,7 +314,7 @@ def check_text_output(what, entries, digits):
     text (digits + a separator), at the least."""
     entries, digits = int(entries), int(digits)
     return check_memory(entries * (16 + digits + 1), what,
-                        f"{entries} entries of up to {digits} digits: 2 list slots of "
+                        f"{entries} entries of up to {digits} digit{'' if digits == 1 else 's'}: 2 list slots of "
                         f"8 bytes and {digits + 1} characters each")
 
 

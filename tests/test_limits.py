@@ -454,8 +454,8 @@ def test_keysched_state_too_large_to_probe(monkeypatch):
     def rotate(x):
         return ((x << 1) | (x >> 4095)) & ((1 << 4096) - 1)
 
-    # probes, their images and the matrix: 3 x 4097 x 4096 bytes = 50,343,936 bytes
-    need = 3 * 4097 * 4096
+    # 7 arrays of 4097 x 4096 bytes (probes, images, matrix; see schedule.py)
+    need = 7 * 4097 * 4096
     set_limit(monkeypatch, need - 1)
     message = refused(from_callable, rotate, state_bits=4096, name="rotate")
     estimate_in(message, need)
@@ -470,13 +470,29 @@ def test_keysched_analysis_checked_then_runs(monkeypatch):
         return ((x << 1) | (x >> 63)) & ((1 << 64) - 1)
 
     sched = from_callable(rotate, state_bits=64, name="rotate64")
-    need = 4 * 64 * 64
+    need = 17 * 64 * 64
     set_limit(monkeypatch, need - 1)
     estimate_in(refused(analyze, sched, up_to=2, factor_seconds=1), need)
     set_limit(monkeypatch, 10 ** 9)
     # x -> rotl(x, 1) on 64 bits has order 64 (common practice: a cyclic shift of n
     # positions by one returns after n steps)
     assert analyze(sched, up_to=2, factor_seconds=1)["period_linear"]["value"] == 64
+
+
+def test_keysched_cli_analysis_refused_before_probing(tmp_path):
+    from gfla.cli.main import cli
+    module = tmp_path / "wide.py"
+    module.write_text("calls = []\n"
+                      "def step(x):\n"
+                      "    calls.append(1)\n"
+                      "    return x\n")
+    # 17 matrices of 3000 x 3000 bytes = 153 MB (see analysis.py)
+    need = 17 * 3000 * 3000
+    r = CliRunner().invoke(cli, ["keysched", "analyze", f"{module}:step", "--state-bits",
+                                 "3000"], env={limits.ENV_VARIABLE: str(need - 1)})
+    assert r.exit_code == 2 and r.stdout == ""
+    assert r.stderr.count("\n") == 1 and f"needs {limits.format_bytes(need)}" in r.stderr
+    assert "analysis of the 3000-bit schedule" in r.stderr
 
 
 # --------------------------------------------------------------------------- mixing
