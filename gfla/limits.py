@@ -13,12 +13,14 @@ carries the estimate::
 
 Sizes in messages are decimal (1 kB = 10^3 bytes, 1 MB = 10^6, 1 GB = 10^9,
 1 TB = 10^12). An estimate counts the arrays an operation keeps alive at its peak
-(``matrices`` x rows x columns x bytes per entry); it is a lower bound of the true
-peak, so a refusal is never a false alarm, and a size that passes can still run out of
-memory if other processes take it meanwhile.
+(``matrices`` x rows x columns x bytes per entry). The numbers of arrays are the
+callers' (each family's figures are in ``gfla.fields``: ``Field._WORKSPACE``), taken
+from measured peaks and rounded down, so an estimate errs low: a refusal means at least
+about that much would be needed, and a size that passes can still run out of memory
+(other processes take memory meanwhile, and a peak can differ at other sizes).
 
-Bytes per entry (:func:`entry_bytes`)
--------------------------------------
+Bytes per entry
+---------------
 ============  ===============  ============================================
 family        arrays in/out    inside the kernels
 ============  ===============  ============================================
@@ -47,9 +49,9 @@ import re
 
 from .errors import InputError
 
-__all__ = ["ENV_VARIABLE", "available_memory", "entry_bytes", "kernel_entry_bytes",
-           "format_bytes", "Workspace", "check_memory", "check_matrices", "check_text_output",
-           "check_npy_header", "read_npy_header"]
+__all__ = ["ENV_VARIABLE", "available_memory", "parse_size", "format_bytes", "Workspace",
+           "check_memory", "check_matrices", "check_text_output", "check_npy_header",
+           "read_npy_header"]
 
 ENV_VARIABLE = "GFLA_MEMORY_LIMIT"
 
@@ -166,18 +168,6 @@ def available_memory():
     if not candidates:
         return None, "unknown"
     return min(candidates)
-
-
-def entry_bytes(F):
-    """Bytes per entry of the arrays ``F``'s methods take and return: 1 for GF(2)
-    (uint8 0/1), else 8 (int64, or uint64 for Z/n with n > 2^63)."""
-    return int(F.dtype.itemsize)
-
-
-def kernel_entry_bytes(F):
-    """Bytes per entry of the dense uint64 matrices the generic kernels work on (every
-    family but GF(2)'s packed paths): 8."""
-    return 8
 
 
 def format_bytes(n):

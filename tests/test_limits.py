@@ -278,9 +278,6 @@ def pickle_bomb(tmp_path, name="evil.npy"):
         np.lib.format.write_array_header_1_0(
             fh, {"descr": "|O", "fortran_order": False, "shape": (1, 1)})
         pickle.dump(Payload(), fh)
-    # the payload is live: unpickling it by hand does create the marker
-    probe = tmp_path / "probe.pkl"
-    probe.write_bytes(pickle.dumps(Payload()))
     return path, marker
 
 

@@ -40,14 +40,15 @@ class Field:
     # ``_WORKSPACE_BYTES``-byte entries (or a (count, bytes) pair), on top of the
     # caller's own input; "matmul_in" counts arrays per entry of each factor and
     # "matmul_out" per entry of the product. The figures are the growth of peak
-    # resident memory measured at n = 2000 (GF(2): n = 4000; Z/n: n = 1000; products
-    # also as (n x 1)(1 x n) outer products at n = 4000), rounded down, taking the
-    # smallest member of each family or tier, so that the estimate is a lower bound and
-    # a refusal is never a false alarm. Where nothing was measured the figure is what
-    # the code surely holds (the validated copy and one working copy). These defaults
-    # are GF(2^k)'s (measured on GF(2^8) and GF(2^16)).
+    # resident memory measured at n = 2000 (GF(2): n = 4000; Z/n and charpoly:
+    # n = 1000; products also as (n x 1)(1 x n) outer products at n = 4000), rounded
+    # down, taking the
+    # smallest member of each family or tier, so that the estimate errs low. Where
+    # nothing was measured the figure is what the code surely holds (the validated
+    # copy and one working copy). These defaults are GF(2^k)'s (measured on GF(2^8)
+    # and GF(2^16)).
     _WORKSPACE = {"matmul_in": 0, "matmul_out": 2, "inv": 3, "det": 2, "rank": 2,
-                  "rref": 2, "nullspace": 5, "solve": 5, "charpoly": 2, "minpoly": 2,
+                  "rref": 2, "nullspace": 5, "solve": 5, "charpoly": 9, "minpoly": 2,
                   "power": 4, "order": 4, "poly_eval_matrix": 4, "random": 2,
                   "random_invertible": 3, "copy": 2}
     _WORKSPACE_BYTES = 8

@@ -86,8 +86,8 @@ class PrimeField(Field):
     # Measured (see fields/base.py): p < 2^32 on GF(7), larger p on GF(2^31-1) (the
     # products of larger p split into more limbs: GF(2^61-1) needs 7 arrays per
     # product entry, inverse 6, power 15).
-    _WORKSPACE = dict(Field._WORKSPACE, inv=3, nullspace=2, solve=2, power=7, order=3,
-                      poly_eval_matrix=3)
+    _WORKSPACE = dict(Field._WORKSPACE, inv=3, nullspace=2, solve=2, charpoly=8, power=7,
+                      order=3, poly_eval_matrix=3)
     _WORKSPACE_LARGE = dict(_WORKSPACE, matmul_in=3, matmul_out=4, inv=5, power=13,
                             order=5, poly_eval_matrix=5)
 
