@@ -86,8 +86,36 @@ def test_available_memory_env_override_and_machine_figure(monkeypatch):
         # MemAvailable is written in KiB ("kB") by the kernel (proc(5))
         with open("/proc/meminfo") as fh:
             kib = next(int(line.split()[1]) for line in fh if line.startswith("MemAvailable:"))
-        assert value <= kib * 1024 * 1.5 and value > 0
+        # the smallest of the figures read, MemAvailable among them (read a moment
+        # apart, so allow 10% drift)
+        assert 0 < value <= kib * 1024 * 1.1
         assert source
+
+
+def test_available_memory_takes_the_smallest_figure(monkeypatch):
+    monkeypatch.setattr(limits, "_meminfo_available", lambda: 8 * 10 ** 9)
+    monkeypatch.setattr(limits, "_cgroup_room", lambda: 2 * 10 ** 9)
+    monkeypatch.setattr(limits, "_address_space_room", lambda: None)
+    assert limits.available_memory() == (2 * 10 ** 9, "room under the cgroup memory limit")
+    monkeypatch.setattr(limits, "_address_space_room", lambda: 10 ** 9)
+    assert limits.available_memory() == (10 ** 9, "address-space limit, ulimit -v")
+    for name in ("_meminfo_available", "_sysconf_available", "_cgroup_room",
+                 "_address_space_room"):
+        monkeypatch.setattr(limits, name, lambda: None)
+    assert limits.available_memory() == (None, "unknown")
+    assert limits.check_matrices("x", 1, (10 ** 6, 10 ** 6), 8) == 8 * 10 ** 12
+
+
+@pytest.mark.skipif(sys.platform != "linux", reason="ulimit -v through bash")
+def test_address_space_limit_is_read():
+    # ulimit -v is in KiB (bash(1)): 4000000 KiB = 4,096,000,000 bytes
+    code = "from gfla import limits; print(limits.available_memory()[0])"
+    out = subprocess.run(["bash", "-c", f"ulimit -v 4000000; exec '{sys.executable}' -c "
+                          f"'{code}'"], capture_output=True, text=True, cwd=ROOT,
+                         env={k: v for k, v in os.environ.items()
+                              if k != limits.ENV_VARIABLE}, timeout=60)
+    assert out.returncode == 0, out.stderr
+    assert int(out.stdout) <= 4000000 * 1024
 
 
 def test_check_memory_message_and_boundary(monkeypatch):
