@@ -46,11 +46,12 @@ may use it (it sits below the fields).
 import math
 import os
 import re
+import time
 
 from .errors import InputError
 
-__all__ = ["ENV_VARIABLE", "available_memory", "parse_size", "format_bytes", "Workspace",
-           "check_memory", "check_matrices", "check_text_output", "check_npy_header",
+__all__ = ["ENV_VARIABLE", "ALWAYS_FITS", "available_memory", "parse_size", "format_bytes", "Workspace",
+           "fits", "check_memory", "check_matrices", "check_text_output", "check_npy_header",
            "read_npy_header"]
 
 ENV_VARIABLE = "GFLA_MEMORY_LIMIT"
@@ -138,10 +139,18 @@ def _address_space_room():
     return soft
 
 
+# The machine's figures are re-read at most this often: reading them costs about 50
+# microseconds, which would double the time of a 4 x 4 inverse.
+_CACHE_SECONDS = 0.5
+_cache = [float("-inf"), None]
+
+
 def available_memory():
     """``(bytes, source)``: the memory gfla may allocate, and where the figure comes from.
 
-    ``bytes`` is None when nothing could be read (then no check refuses anything).
+    ``bytes`` is None when nothing could be read (then no check refuses anything). The
+    machine's figures are cached for ``_CACHE_SECONDS``; ``GFLA_MEMORY_LIMIT`` is read
+    on every call.
 
     Raises
     ------
@@ -151,6 +160,15 @@ def available_memory():
     text = os.environ.get(ENV_VARIABLE, "").strip()
     if text:
         return parse_size(text), f"{ENV_VARIABLE}={text}"
+    now = time.monotonic()
+    if now < _cache[0]:
+        return _cache[1]
+    _cache[1] = _machine_memory()
+    _cache[0] = now + _CACHE_SECONDS
+    return _cache[1]
+
+
+def _machine_memory():
     candidates = []
     value = _meminfo_available()
     if value is not None:
@@ -212,7 +230,7 @@ class Workspace:
     """
 
     def __init__(self, what):
-        self.what = what
+        self.what = what        # text, or a callable giving it (called when refusing)
         self.parts = []
 
     def add(self, count, shape, bytes_each, label=None):
@@ -251,7 +269,22 @@ class Workspace:
     def check(self, hint=None):
         """Raise :class:`InputError` with the estimate when it exceeds the available
         memory; return the estimate in bytes otherwise."""
-        return check_memory(self.nbytes, self.what, self.describe(), hint)
+        return check_memory(self.nbytes, self.what, self.describe, hint)
+
+
+# Estimates up to this many bytes are never refused and cost no look-up: no machine
+# running Python has less free, and it keeps the check off the smallest matrices (a
+# 4 x 4 inverse takes about 15 microseconds; reading the limit takes 1 to 2).
+ALWAYS_FITS = 2048
+
+
+def fits(nbytes):
+    """True when ``nbytes`` fit in the available memory (the cheap test a caller makes
+    before building a message with :class:`Workspace`)."""
+    if nbytes <= ALWAYS_FITS:
+        return True
+    available, _ = available_memory()
+    return available is None or nbytes <= available
 
 
 def check_memory(nbytes, what, detail=None, hint=None):
@@ -261,10 +294,11 @@ def check_memory(nbytes, what, detail=None, hint=None):
     ----------
     nbytes : int
         The estimate, in bytes.
-    what : str
+    what : str or callable
         What needs it (``"inverse of a 3 x 3 matrix over GF(7)"``); starts the message.
-    detail : str, optional
-        How the estimate is made up, shown in parentheses.
+        A callable returning the text is called only when refusing.
+    detail : str or callable, optional
+        How the estimate is made up, shown in parentheses (a callable: as ``what``).
     hint : str, optional
         What would need less, appended to the message.
 
@@ -279,9 +313,13 @@ def check_memory(nbytes, what, detail=None, hint=None):
         ``"<what> needs 320 GB (<detail>), more than the 24 GB of memory available
         (<source>); decimal units, 1 GB = 10^9 bytes"``.
     """
+    if nbytes <= ALWAYS_FITS:
+        return nbytes
     available, source = available_memory()
     if available is None or nbytes <= available:
         return nbytes
+    what = what() if callable(what) else what
+    detail = detail() if callable(detail) else detail
     unit = format_bytes(nbytes).split()[-1]
     scale = {"kB": "1 kB = 10^3", "MB": "1 MB = 10^6", "GB": "1 GB = 10^9",
              "TB": "1 TB = 10^12", "PB": "1 PB = 10^15", "EB": "1 EB = 10^18"}.get(unit)

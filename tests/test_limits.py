@@ -93,6 +93,8 @@ def test_available_memory_env_override_and_machine_figure(monkeypatch):
 
 
 def test_available_memory_takes_the_smallest_figure(monkeypatch):
+    monkeypatch.setattr(limits, "_CACHE_SECONDS", 0)      # re-read the figures each call
+    monkeypatch.setattr(limits, "_cache", [float("-inf"), None])
     monkeypatch.setattr(limits, "_meminfo_available", lambda: 8 * 10 ** 9)
     monkeypatch.setattr(limits, "_cgroup_room", lambda: 2 * 10 ** 9)
     monkeypatch.setattr(limits, "_address_space_room", lambda: None)
@@ -133,6 +135,14 @@ def test_check_memory_message_and_boundary(monkeypatch):
     estimate_in(refused(limits.check_matrices, "x", 1, (200000, 200000), 8), need)
 
 
+def test_tiny_estimates_are_never_refused(monkeypatch):
+    set_limit(monkeypatch, 1)
+    assert limits.check_matrices("x", 1, (16, 16), 8) == 2048     # ALWAYS_FITS bytes
+    estimate_in(refused(limits.check_matrices, "x", 1, (16, 16), 8 + 1), 16 * 16 * 9)
+    F = gfla.field("GF(7)")
+    assert F.inv(np.eye(4, dtype=np.int64)).tolist() == np.eye(4, dtype=int).tolist()
+
+
 def test_packed_bits_round_rows_up_to_words():
     # a 1000 x 100 bit-packed matrix: 1000 rows of ceil(100 / 64) = 2 words of 8 bytes
     w = limits.Workspace("packed").add(1, (1000, 100), 0.125)
@@ -143,7 +153,7 @@ def test_packed_bits_round_rows_up_to_words():
 def test_bad_limit_text_is_an_input_error(monkeypatch):
     monkeypatch.setenv(limits.ENV_VARIABLE, "plenty")
     with pytest.raises(InputError, match="is not a size"):
-        limits.check_matrices("x", 1, (2, 2), 8)
+        limits.check_matrices("x", 1, (200, 200), 8)
 
 
 # --------------------------------------------------------------------------- fields

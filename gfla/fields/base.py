@@ -78,6 +78,8 @@ class Field:
         """
         if isinstance(A, np.ndarray) and A.size:
             from .. import limits
+            if limits.fits(A.size * (self._validate_dtype().itemsize + self.dtype.itemsize)):
+                return self._out(self._validate(A, name, ndim))
             w = limits.Workspace(f"validating the {' x '.join(map(str, A.shape))} {name} "
                                  f"over {self.spec}")
             w.add(1, A.shape, self._validate_dtype().itemsize, "validated array")
@@ -152,9 +154,13 @@ class Field:
         (``_WORKSPACE``) would not fit in the available memory (``gfla.limits``)."""
         from .. import limits
         rows, cols = (int(shape[0]), int(shape[-1])) if len(shape) >= 2 else (int(shape[0]), 1)
-        what = what or (f"{_OPERATION_NAMES.get(op, op)} of a {rows} x {cols} matrix over "
-                        f"{self.spec}")
         count, bytes_each = self._workspace(op)
+        if limits.fits(count * rows * cols * bytes_each):
+            return
+        if what is None:
+            def what():
+                return (f"{_OPERATION_NAMES.get(op, op)} of a {rows} x {cols} matrix "
+                        f"over {self.spec}")
         limits.Workspace(what).add(count, (rows, cols), bytes_each).check()
 
     def _workspace(self, op):
@@ -175,7 +181,10 @@ class Field:
             return      # the shape error is reported by the product itself
         c_in, b_in = self._workspace("matmul_in")
         c_out, b_out = self._workspace("matmul_out")
-        w = limits.Workspace(f"product of a {m} x {k} and a {k} x {n} matrix over {self.spec}")
+        if limits.fits(c_out * m * n * b_out + c_in * (m * k + k * n) * b_in):
+            return
+        w = limits.Workspace(lambda: f"product of a {m} x {k} and a {k} x {n} matrix over "
+                                     f"{self.spec}")
         if m == k == n and b_in == b_out:
             w.add(c_out + 2 * c_in, (m, n), b_out)
         else:
