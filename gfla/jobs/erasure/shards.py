@@ -85,8 +85,9 @@ def chunk_bytes(chunk_size, shard_size, rows):
         chunk = chunk_size
     chunk = -(-chunk // 8) * 8
     chunk = max(8, min(chunk, -(-shard_size // 8) * 8))
-    from ...limits import check_matrices
-    check_matrices(f"buffers of {chunk} bytes for each of {rows} shards", 1, (rows, chunk), 1)
+    from ...limits import Workspace
+    Workspace(f"buffers of {chunk} bytes for each of {rows} shards").add(
+        rows, (chunk,), 1, "shard buffer").check()
     return chunk
 
 
