@@ -215,7 +215,10 @@ def analyze(spec, up_to, factor_seconds, state_bits, seed_text, as_json):
     """
     from gfla.jobs import keysched as ks
     from gfla.jobs.keysched import report
+    from gfla.jobs.keysched.analysis import check_analysis_memory
 
+    if state_bits is not None:      # refuse before probing, which takes a while
+        check_analysis_memory(state_bits, spec)
     sched = _load(spec, state_bits, seed_text)
     result = ks.analyze(sched, up_to=up_to, factor_seconds=factor_seconds)
     if as_json:

@@ -175,6 +175,7 @@ def mul(field_spec, modulus, matrices, input_paths, hex_text, as_json):
              else [f"matrix {k}" for k in range(1, len(sources) + 1)])
     factors = [_matrix(F, text, path, hex_text, name)
                for (text, path), name in zip(sources, names)]
+    _check_product_output(F, factors, hex_text, as_json)
     product = factors[0]
     for factor in factors[1:]:
         product = F.matmul(product, factor)
@@ -182,6 +183,18 @@ def mul(field_spec, modulus, matrices, input_paths, hex_text, as_json):
         emit_json({**base_payload(F), "product": product})
     else:
         click.echo(format_matrix(product, F, hex_text))
+
+
+def _check_product_output(F, factors, hex_text, as_json):
+    """Before multiplying: the printed product must fit in memory (gfla.limits); the
+    product's own work arrays are checked by F.matmul."""
+    from gfla.limits import check_text_output
+
+    rows, cols = factors[0].shape[0], factors[-1].shape[1]
+    if all(a.shape[1] == b.shape[0] for a, b in zip(factors, factors[1:])):
+        digits = len(format(F.size - 1, "x" if hex_text else "d"))
+        check_text_output(f"printing the {rows} x {cols} product"
+                          f"{' as JSON' if as_json else ''}", rows * cols, digits)
 
 
 # --------------------------------------------------------------------------- inv

@@ -36,6 +36,22 @@ class Field:
     modulus = None
     dtype = np.dtype(np.int64)
     _ctx = None
+    # Work arrays alive at each operation's peak, as a number of n x n matrices of
+    # ``_WORKSPACE_BYTES``-byte entries (or a (count, bytes) pair), on top of the
+    # caller's own input; "matmul_in" counts arrays per entry of each factor and
+    # "matmul_out" per entry of the product. The figures are the growth of peak
+    # resident memory measured at n = 2000 (GF(2): n = 4000; Z/n and charpoly:
+    # n = 1000; products also as (n x 1)(1 x n) outer products at n = 4000), rounded
+    # down, taking the
+    # smallest member of each family or tier, so that the estimate errs low. Where
+    # nothing was measured the figure is what the code surely holds (the validated
+    # copy and one working copy). These defaults are GF(2^k)'s (measured on GF(2^8)
+    # and GF(2^16)).
+    _WORKSPACE = {"matmul_in": 0, "matmul_out": 2, "inv": 3, "det": 2, "rank": 2,
+                  "rref": 2, "nullspace": 5, "solve": 5, "charpoly": 9, "minpoly": 2,
+                  "power": 4, "order": 4, "poly_eval_matrix": 4, "random": 2,
+                  "random_invertible": 3, "copy": 2}
+    _WORKSPACE_BYTES = 8
 
     def __repr__(self):
         if self.modulus is not None:
@@ -60,7 +76,19 @@ class Field:
             When ``A`` is not an integer array of the expected number of dimensions, or
             an entry lies outside 0 .. order-1 (the message names row and column).
         """
+        if isinstance(A, np.ndarray) and A.size:
+            from .. import limits
+            if limits.fits(A.size * (self._validate_dtype().itemsize + self.dtype.itemsize)):
+                return self._out(self._validate(A, name, ndim))
+            w = limits.Workspace(f"validating the {' x '.join(map(str, A.shape))} {name} "
+                                 f"over {self.spec}")
+            w.add(1, A.shape, self._validate_dtype().itemsize, "validated array")
+            w.add(1, A.shape, self.dtype.itemsize, "returned array").check()
         return self._out(self._validate(A, name, ndim))
+
+    def _validate_dtype(self):
+        """dtype of the internal (validated) arrays."""
+        return np.dtype(np.uint64)
 
     def _validate(self, A, name="matrix", ndim=2):
         """Validate and convert to the internal uint64 representation."""
@@ -121,6 +149,69 @@ class Field:
             raise InputError(f"{name} must be square, got {U.shape[0]} x {U.shape[1]}")
         return U
 
+    def _check_workspace(self, op, shape, what=None):
+        """Refuse ``op`` on a matrix of ``shape`` before any work when its work arrays
+        (``_WORKSPACE``) would not fit in the available memory (``gfla.limits``)."""
+        from .. import limits
+        rows, cols = (int(shape[0]), int(shape[-1])) if len(shape) >= 2 else (int(shape[0]), 1)
+        count, bytes_each = self._workspace(op)
+        if limits.fits(count * rows * cols * bytes_each):
+            return
+        if what is None:
+            def what():
+                return (f"{_OPERATION_NAMES.get(op, op)} of a {rows} x {cols} matrix "
+                        f"over {self.spec}")
+        limits.Workspace(what).add(count, (rows, cols), bytes_each).check()
+
+    def _workspace(self, op):
+        """(number of matrices, bytes per entry) of ``op`` from ``_WORKSPACE``."""
+        figure = self._WORKSPACE[op]
+        if isinstance(figure, tuple):
+            return figure
+        return figure, self._WORKSPACE_BYTES
+
+    def _check_product(self, a_shape, b_shape):
+        """The memory check of a product (m x k)(k x n): ``_WORKSPACE["matmul_out"]``
+        arrays of the size of the m x n product and ``_WORKSPACE["matmul_in"]`` of the
+        size of each factor."""
+        from .. import limits
+        m, k = int(a_shape[0]), int(a_shape[1])
+        k2, n = int(b_shape[0]), int(b_shape[1])
+        if k != k2:
+            return      # the shape error is reported by the product itself
+        c_in, b_in = self._workspace("matmul_in")
+        c_out, b_out = self._workspace("matmul_out")
+        if limits.fits(c_out * m * n * b_out + c_in * (m * k + k * n) * b_in):
+            return
+        w = limits.Workspace(lambda: f"product of a {m} x {k} and a {k} x {n} matrix over "
+                                     f"{self.spec}")
+        if m == k == n and b_in == b_out:
+            w.add(c_out + 2 * c_in, (m, n), b_out)
+        else:
+            w.add(c_out, (m, n), b_out, "product-size array")
+            w.add(c_in, (m, k), b_in, "left-factor-size array")
+            w.add(c_in, (k, n), b_in, "right-factor-size array")
+        w.check()
+
+    def _checked_square(self, op, A, name="matrix"):
+        """Memory check (from the shape of an array, before copying it; from the
+        validated copy for nested lists), then validation as a square matrix."""
+        shape = getattr(A, "shape", None)
+        if isinstance(A, np.ndarray) and A.ndim == 2:
+            self._check_workspace(op, shape)
+            return self._square(A, name)
+        U = self._square(A, name)
+        self._check_workspace(op, U.shape)
+        return U
+
+    def _checked(self, op, A, name="matrix"):
+        if isinstance(A, np.ndarray) and A.ndim == 2 and A.size:
+            self._check_workspace(op, A.shape)
+            return self._validate(A, name)
+        U = self._validate(A, name)
+        self._check_workspace(op, U.shape)
+        return U
+
     def _element(self, a, name="element"):
         if isinstance(a, (bool, np.bool_)) or not isinstance(a, numbers.Integral):
             raise InputError(f"{name} {a!r} is not an integer")
@@ -130,9 +221,19 @@ class Field:
         return a
 
     def identity(self, n):
+        from .. import limits
+        n = int(n)
+        w = limits.Workspace(f"identity matrix of size {n} over {self.spec}")
+        w.add(1, (n, n), self._identity(1).dtype.itemsize, "internal matrix")
+        w.add(1, (n, n), self.dtype.itemsize, "returned matrix").check()
         return self._out(self._identity(n))
 
     def zeros(self, shape):
+        from .. import limits
+        dims = (int(shape),) if np.ndim(shape) == 0 else tuple(int(s) for s in shape)
+        if all(d >= 0 for d in dims):
+            limits.check_matrices(f"zero array of shape {dims} over {self.spec}", 1,
+                                  dims, self.dtype.itemsize)
         return np.zeros(shape, dtype=self.dtype)
 
     def _identity(self, n):
@@ -200,17 +301,31 @@ class Field:
         from ..kernels import dense
         return int(dense.trace(U, self._ctx))
 
+    def _operands(self, A, B, what):
+        U, V = self._validate(A, "A", None), self._validate(B, "B", None)
+        try:
+            shape = np.broadcast_shapes(U.shape, V.shape)
+        except ValueError:
+            raise InputError(f"{what}: shapes {U.shape} and {V.shape} do not match") from None
+        if shape != U.shape and shape != V.shape:
+            # broadcasting makes a result larger than either operand: the two broadcast
+            # copies, the result and its returned copy
+            from .. import limits
+            limits.check_matrices(f"elementwise {what} of shapes {U.shape} and {V.shape} "
+                                  f"over {self.spec}", 4, shape, 8)
+        return U, V
+
     def add(self, A, B):
         """Elementwise sum."""
-        return self._out(self._add(self._validate(A, "A", None), self._validate(B, "B", None)))
+        return self._out(self._add(*self._operands(A, B, "sum")))
 
     def sub(self, A, B):
         """Elementwise difference A - B."""
-        return self._out(self._sub(self._validate(A, "A", None), self._validate(B, "B", None)))
+        return self._out(self._sub(*self._operands(A, B, "difference")))
 
     def mul(self, A, B):
         """Elementwise (Hadamard) product."""
-        return self._out(self._mul(self._validate(A, "A", None), self._validate(B, "B", None)))
+        return self._out(self._mul(*self._operands(A, B, "product")))
 
     def neg(self, A):
         """Elementwise negation."""
@@ -299,28 +414,34 @@ class Field:
     def matmul(self, A, B):
         """Matrix product A B."""
         from ..linalg import multiply
-        return self._out(multiply.matmul(self, self._validate(A, "A"), self._validate(B, "B")))
+        if isinstance(A, np.ndarray) and isinstance(B, np.ndarray) and A.ndim == B.ndim == 2:
+            self._check_product(A.shape, B.shape)
+            U, V = self._validate(A, "A"), self._validate(B, "B")
+        else:
+            U, V = self._validate(A, "A"), self._validate(B, "B")
+            self._check_product(U.shape, V.shape)
+        return self._out(multiply.matmul(self, U, V))
 
     def rank(self, A):
         """Rank of A (over Z/n: the McCoy rank)."""
         from ..linalg import eliminate
-        return eliminate.rank(self, self._validate(A))
+        return eliminate.rank(self, self._checked("rank", A))
 
     def rref(self, A):
         """Reduced row echelon form and pivot columns (over Z/n: the Howell form)."""
         from ..linalg import eliminate
-        R, piv = eliminate.rref(self, self._validate(A))
+        R, piv = eliminate.rref(self, self._checked("rref", A))
         return self._out(R), tuple(int(p) for p in piv)
 
     def nullspace(self, A):
         """Basis (rows) of the right kernel {x : A x = 0}; over Z/n a generating set."""
         from ..linalg import eliminate
-        return self._out(eliminate.nullspace(self, self._validate(A)))
+        return self._out(eliminate.nullspace(self, self._checked("nullspace", A)))
 
     def solve(self, A, b):
         """Solve A x = b: ``Solution(consistent, particular, nullspace)``."""
         from ..linalg import eliminate
-        U = self._validate(A)
+        U = self._checked("solve", A)
         bv = self._validate(b, "rhs", 1)
         if bv.shape[0] != U.shape[0]:
             raise InputError(f"rhs has {bv.shape[0]} entries, the matrix has {U.shape[0]} rows")
@@ -340,12 +461,13 @@ class Field:
             Run Freivalds' randomised check of A X = I before returning.
         """
         from ..linalg import inverse
-        return self._out(inverse.inv(self, self._square(A), method=method, verify=verify))
+        return self._out(inverse.inv(self, self._checked_square("inv", A), method=method,
+                                     verify=verify))
 
     def det(self, A):
         """Determinant."""
         from ..linalg import eliminate
-        return eliminate.det(self, self._square(A))
+        return eliminate.det(self, self._checked_square("det", A))
 
     def charpoly(self, A, method="auto"):
         """Characteristic polynomial det(xI - A), highest degree first.
@@ -355,36 +477,53 @@ class Field:
         method : {"auto", "hessenberg", "berkowitz", "csanky"}
         """
         from ..linalg import charpoly
-        return charpoly.charpoly(self, self._square(A), method=method)
+        return charpoly.charpoly(self, self._checked_square("charpoly", A), method=method)
 
     def minpoly(self, A):
         """Minimal polynomial, highest degree first (monic)."""
         from ..linalg import charpoly
-        return charpoly.minpoly(self, self._square(A))
+        return charpoly.minpoly(self, self._checked_square("minpoly", A))
 
     def power(self, A, e):
         """A^e for any integer e (negative: a power of the inverse)."""
         from ..linalg import power
-        return self._out(power.power(self, self._square(A), e))
+        op = "power"
+        if isinstance(e, numbers.Integral) and not isinstance(e, bool) and -1 <= e <= 1:
+            op = "inv" if e < 0 else "copy"     # A^-1, or a copy of A or of I
+        return self._out(power.power(self, self._checked_square(op, A), e))
 
     def order(self, A):
         """Multiplicative order of an invertible matrix."""
         from ..linalg import power
-        return power.order(self, self._square(A))
+        return power.order(self, self._checked_square("order", A))
 
     def random(self, shape, invertible=False, seed=None):
         """Uniformly random matrix; ``invertible=True`` draws uniformly from GL(n)."""
         from ..linalg import random as rnd
+        dims = rnd._shape(shape)
+        op = "random_invertible" if invertible and dims[0] == dims[1] else "random"
+        self._check_workspace(op, dims, f"random {dims[0]} x {dims[1]} matrix"
+                              f"{' (invertible)' if invertible else ''} over {self.spec}")
         return self._out(rnd.random(self, shape, invertible=invertible, seed=seed))
 
     def poly_eval_matrix(self, poly, A):
         """Evaluate a polynomial (highest degree first) at a square matrix (Horner)."""
         from ..linalg import charpoly
-        return self._out(charpoly.poly_at_matrix(self, poly, self._square(A)))
+        return self._out(charpoly.poly_at_matrix(self, poly,
+                                                 self._checked_square("poly_eval_matrix", A)))
 
     def info(self):
         """Order, characteristic, modulus and a generator of the multiplicative group."""
         raise NotImplementedError
+
+
+_OPERATION_NAMES = {"inv": "inverse", "det": "determinant", "rank": "rank",
+                    "rref": "row echelon form", "nullspace": "nullspace",
+                    "solve": "solving a system", "charpoly": "characteristic polynomial",
+                    "minpoly": "minimal polynomial", "power": "power",
+                    "order": "multiplicative order",
+                    "poly_eval_matrix": "polynomial evaluation",
+                    "random": "random matrix", "matmul": "product", "copy": "power"}
 
 
 def _where(idx):

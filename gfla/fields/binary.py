@@ -17,6 +17,14 @@ __all__ = ["BinaryField"]
 class BinaryField(Field):
     """The field with two elements."""
 
+    # In bytes of uint8 0/1 entries (measured at n = 4000, see fields/base.py); the
+    # characteristic polynomial runs on uint64 copies (measured at n = 1000).
+    _WORKSPACE = {"matmul_in": 0, "matmul_out": 2, "inv": 2, "det": 2, "rank": 2,
+                  "rref": 2, "nullspace": 2, "solve": 9, "charpoly": (5, 8),
+                  "minpoly": (1, 8), "power": 4, "order": 2, "poly_eval_matrix": 4,
+                  "random": 2, "random_invertible": 3, "copy": 2}
+    _WORKSPACE_BYTES = 1
+
     def __init__(self, modulus=None):
         self.size = 2
         self.characteristic = 2
@@ -44,6 +52,9 @@ class BinaryField(Field):
 
     def _identity(self, n):
         return np.eye(n, dtype=np.uint8)
+
+    def _validate_dtype(self):
+        return np.dtype(np.uint8)
 
     @staticmethod
     def _pack(A):

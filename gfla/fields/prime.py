@@ -83,6 +83,20 @@ class PrimeField(Field):
         A prime, 2 <= p < 2^63 (checked).
     """
 
+    # Measured (see fields/base.py): p < 2^32 on GF(7), larger p on GF(2^31-1) (the
+    # products of larger p split into more limbs: GF(2^61-1) needs 7 arrays per
+    # product entry, inverse 6, power 15).
+    _WORKSPACE = dict(Field._WORKSPACE, inv=3, nullspace=2, solve=2, charpoly=8, power=7,
+                      order=3, poly_eval_matrix=3)
+    _WORKSPACE_LARGE = dict(_WORKSPACE, matmul_in=3, matmul_out=4, inv=5, power=13,
+                            order=5, poly_eval_matrix=5)
+
+    def _workspace(self, op):
+        if self.size >= 1 << 32:
+            figure = self._WORKSPACE_LARGE[op]
+            return figure if isinstance(figure, tuple) else (figure, 8)
+        return super()._workspace(op)
+
     def __init__(self, p):
         p = int(p)
         if p < 2 or p > MAX_PRIME:
@@ -123,6 +137,7 @@ class PrimeField(Field):
         from ..linalg import multiply
         if (isinstance(A, np.ndarray) and isinstance(B, np.ndarray) and A.ndim == 2
                 and B.ndim == 2 and A.shape[1] == B.shape[0]):
+            self._check_product(A.shape, B.shape)
             L, _, kc = multiply.limb_plan((self.p - 1).bit_length(), A.shape[1])
             if L == 1 and kc >= A.shape[1]:
                 Af = _float_operand(A, self.p)

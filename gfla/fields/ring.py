@@ -25,6 +25,19 @@ class ResidueRing(Field):
     """
 
     is_field = False
+    # Measured (see fields/base.py) on Z/1000 and Z/2^64; operations not measured count
+    # the validated copy only (Berkowitz keeps O(n) vectors beside it).
+    _WORKSPACE = dict(Field._WORKSPACE, inv=10, det=1, rank=1, rref=1, nullspace=1,
+                      solve=1, charpoly=1, minpoly=1, power=6, order=4,
+                      poly_eval_matrix=4)
+    _WORKSPACE_LARGE = dict(_WORKSPACE, matmul_in=3, matmul_out=4, power=13, order=13,
+                            poly_eval_matrix=13)
+
+    def _workspace(self, op):
+        if self.size >= 1 << 32:
+            figure = self._WORKSPACE_LARGE[op]
+            return figure if isinstance(figure, tuple) else (figure, 8)
+        return super()._workspace(op)
 
     def __init__(self, n):
         n = int(n)

@@ -183,6 +183,12 @@ def parse_vector(text, hex=False):
 def _read_npy(path, what):
     import numpy as np
 
+    from ..limits import check_npy_header
+
+    # The header alone first: an object dtype is refused unread, and a declared shape
+    # that would not fit in memory (or that the file is too short to hold) is refused
+    # with its size before numpy allocates it.
+    check_npy_header(path, f"the {what}")
     try:
         array = np.load(path, allow_pickle=False)
     except ValueError as exc:

@@ -17,11 +17,12 @@ import os
 import numpy as np
 
 from ...errors import InconsistentSystemError, InputError
+from ...limits import Workspace
 from .ops import BULK_OPERATIONS, OPERATIONS
 from .records import error_object, field_of, limit_threads
 
 __all__ = ["BulkInput", "open_bulk", "bulk_paths", "result_layout", "process_stack",
-           "StackResult", "SIDECAR_KEYS"]
+           "StackResult", "SIDECAR_KEYS", "chunk_workspace"]
 
 SIDECAR_KEYS = ("field", "modulus", "op", "count", "shape", "dtype", "rhs", "exponent")
 
@@ -38,6 +39,14 @@ def _load(path, what):
         raise InputError(f"{path}: no such file")
     if os.path.isdir(path):
         raise InputError(f"{path}: is a directory, not a file")
+    # The header first: an object array is refused without reading (so nothing is
+    # unpickled), and a file shorter than its header declares is named as such.
+    from ...limits import read_npy_header
+    _, dtype, _, _ = read_npy_header(path)
+    if dtype.hasobject:
+        raise InputError(
+            f"{path}: holds Python objects (for example matrices of different sizes); "
+            f"{what} must be one integer array")
     try:
         arr = np.load(path, mmap_mode="r", allow_pickle=False)
     except ValueError as exc:
@@ -124,15 +133,28 @@ class BulkInput:
                 self.exponent, self._rows.read(start, stop), rhs, start)
 
 
-def open_bulk(path):
+def open_bulk(path, chunk_size=None, workers=1, remote_workers=False):
     """Open ``X.npy`` with its sidecar ``X.json`` and check that they agree.
+
+    Parameters
+    ----------
+    path : str
+    chunk_size : int, optional
+        Matrices per chunk of the run that will read the stack; with it the memory the
+        chunks in flight need is checked (:func:`chunk_workspace`).
+    workers : int
+        Worker processes (each holds one chunk while the reader holds two per worker).
+    remote_workers : bool
+        The workers run elsewhere (a Dask scheduler given by address): only the
+        reader's buffers count against this machine's memory.
 
     Raises
     ------
     InputError
         Missing or unreadable files, an array that is not ``(N, m, n)`` integers, a
-        sidecar that names no field or op, an op without a fixed-shape result, or any
-        stated count, shape, dtype that does not match the array.
+        sidecar that names no field or op, an op without a fixed-shape result, any
+        stated count, shape, dtype that does not match the array, or a matrix size or
+        chunk that would not fit in memory (the message carries the estimate).
     """
     path = os.fspath(path)
     base = path[:-4] if path.lower().endswith(".npy") else path
@@ -208,7 +230,50 @@ def open_bulk(path):
                 exponent = parse_int_expr(exponent, "exponent")
             except InputError as exc:
                 raise InputError(f"{side_path}: {exc}") from None
-    return BulkInput(path, stack, sidecar, F, op, rhs, exponent, rhs_path=rhs_path)
+    bulk = BulkInput(path, stack, sidecar, F, op, rhs, exponent, rhs_path=rhs_path)
+    # One matrix's own work (the per-matrix path of large matrices runs the field
+    # operation, whose workspace is that of the field), then the chunks in flight.
+    if opname in _FIELD_WORKSPACE:
+        F._check_workspace(_FIELD_WORKSPACE[opname], (m, n),
+                           f"{path}: op {opname!r} on one {m} x {n} matrix over {F.spec}")
+    if chunk_size is not None:
+        chunk_workspace(bulk, chunk_size, workers, remote_workers).check(
+            "fewer matrices per chunk, or fewer workers, need less")
+    return bulk
+
+
+_FIELD_WORKSPACE = {"inv": "inv", "det": "det", "rank": "rank", "solve": "solve",
+                    "charpoly": "charpoly", "power": "power"}
+
+
+def chunk_workspace(bulk, chunk_size, workers=1, remote_workers=False):
+    """The memory a run of ``bulk`` in chunks of ``chunk_size`` matrices holds at once,
+    as a :class:`gfla.limits.Workspace` (not yet checked).
+
+    Per matrix of a chunk: the rows read (the stack's dtype), their uint64 copy, the
+    result (uint64 from the kernels, its copy in the result dtype). One process runs a
+    chunk at a time; with ``workers`` > 1 the reader also holds ``2 * workers`` chunks
+    read ahead.
+    """
+    N, m, n = (int(x) for x in bulk.stack.shape)
+    K = max(1, min(N, int(chunk_size)))
+    shape, dtype, _ = result_layout(bulk)
+    per_result = int(np.prod(shape[1:], dtype=np.int64)) if len(shape) > 1 else 1
+    item = bulk.stack.dtype.itemsize
+    if workers <= 1:            # this process reads a chunk and computes it
+        ahead, running, held = 1, 1, 1
+    else:                       # the reader's chunks in flight, and each worker's own
+        ahead = 2 * workers
+        running = 0 if remote_workers else workers
+        held = ahead + running
+    w = Workspace(f"{bulk.path}: chunks of {K} matrices of {m} x {n} "
+                  f"({ahead} read, {running} computing at once)")
+    w.add(K * held, (m, n), item, "read matrix")
+    w.add(K * running, (m, n), 8, "uint64 matrix")
+    w.add(K * running, (per_result,), 8 + dtype.itemsize, "result")
+    if bulk.rhs is not None:
+        w.add(K * held, (m,), bulk.rhs.dtype.itemsize, "right-hand side")
+    return w
 
 
 def element_dtype(F):

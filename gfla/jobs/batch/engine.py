@@ -442,7 +442,8 @@ def _run_bulk(path, out, header, workers, resume, engine, scheduler, chunk_size,
     from .bulk import bulk_paths, open_bulk, process_stack, result_layout
     from .journal import Journal, fsync_directory
     t0 = time.perf_counter()
-    bulk = open_bulk(path)
+    bulk = open_bulk(path, chunk_size=chunk_size, workers=workers,
+                     remote_workers=engine == "dask" and scheduler is not None)
     res_path, side_path, err_path = bulk_paths(out)
     if os.path.abspath(res_path) == os.path.abspath(path):
         raise InputError("--out names the input file itself")

@@ -196,11 +196,27 @@ def generator_matrix(F, k, m, construction="vandermonde"):
         raise InputError(f"construction must be one of {', '.join(CONSTRUCTIONS)}, "
                          f"got {construction!r}")
     if k + m > F.size:
-        raise InputError(f"k + m = {k + m} shards need {k + m} distinct points but "
-                         f"{F.spec} has only {F.size} elements")
+        points = ("the points 0 .. k+m-1" if construction == "vandermonde"
+                  else "the points x_i = k+i and y_j = j")
+        raise InputError(f"k + m = {k + m} shards is more than {F.spec} allows: the "
+                         f"{construction} construction needs k + m distinct field elements "
+                         f"({points}) but {F.spec} has only {F.size} elements, so "
+                         f"k + m <= {F.size}"
+                         + (f" (with m = {m}: k <= {F.size - m})" if m < F.size else ""))
+    from ...limits import Workspace, format_bytes
     if (k + m) * k > MAX_GENERATOR_ENTRIES:
-        raise InputError(f"a {k + m} x {k} generator has {(k + m) * k} entries, more than "
-                         f"the {MAX_GENERATOR_ENTRIES} this tool holds in memory")
+        raise InputError(f"a {k + m} x {k} generator has {(k + m) * k} entries "
+                         f"({format_bytes((k + m) * k * 8)} as int64), more than the "
+                         f"{MAX_GENERATOR_ENTRIES} ({format_bytes(MAX_GENERATOR_ENTRIES * 8)})"
+                         " this tool holds in memory")
+    # the generator and the matrix it is made from (Vandermonde V, or the Cauchy sums),
+    # plus the inverse of the top k x k block of V with its work arrays
+    w = Workspace(f"the {construction} generator for k = {k}, m = {m} over {F.spec}")
+    w.add(2, (k + m, k), 8, "generator-size matrix")
+    if construction == "vandermonde":
+        count, bytes_each = F._workspace("inv")
+        w.add(count, (k, k), bytes_each, "inverse work matrix")
+    w.check()
     if construction == "vandermonde":
         return systematic_vandermonde(F, k, m)
     return systematic_cauchy(F, k, m)

@@ -84,7 +84,11 @@ def chunk_bytes(chunk_size, shard_size, rows):
                              f"{chunk_size!r}")
         chunk = chunk_size
     chunk = -(-chunk // 8) * 8
-    return max(8, min(chunk, -(-shard_size // 8) * 8))
+    chunk = max(8, min(chunk, -(-shard_size // 8) * 8))
+    from ...limits import Workspace
+    Workspace(f"buffers of {chunk} bytes for each of {rows} shards").add(
+        rows, (chunk,), 1, "shard buffer").check()
+    return chunk
 
 
 def _report(progress, phase, done, total):

@@ -36,8 +36,8 @@ import numpy as np
 from . import bits as B
 from . import gf2poly as P
 
-__all__ = ["analyze", "poly_at_matrix", "linear_structure", "DEFAULT_UP_TO",
-           "DEFAULT_FACTOR_SECONDS"]
+__all__ = ["analyze", "check_analysis_memory", "poly_at_matrix", "linear_structure",
+           "DEFAULT_UP_TO", "DEFAULT_FACTOR_SECONDS"]
 
 DEFAULT_UP_TO = 32
 DEFAULT_FACTOR_SECONDS = 20.0
@@ -251,6 +251,15 @@ def fixed_spaces(sched, up_to):
     return out
 
 
+def check_analysis_memory(n, name):
+    """Refuse analysing an n-bit schedule whose work matrices would not fit
+    (``gfla.limits``): n x n 0/1 byte matrices alive at the peak beside M (the powers
+    and blocks of poly_at_matrix, the products, M^r + I in the fixed spaces), 17 of them
+    (peak resident memory measured at n = 4096 on a rotation: 17.4 n^2 bytes)."""
+    from ...limits import Workspace
+    Workspace(f"analysis of the {n}-bit schedule {name}").add(17, (n, n), 1).check()
+
+
 def analyze(sched, up_to=None, factor_seconds=DEFAULT_FACTOR_SECONDS):
     """Everything ``gfla keysched analyze`` reports, as a JSON-ready dict.
 
@@ -265,6 +274,7 @@ def analyze(sched, up_to=None, factor_seconds=DEFAULT_FACTOR_SECONDS):
     """
     t0 = time.perf_counter()
     n = sched.n
+    check_analysis_memory(n, sched.name)
     up_to = DEFAULT_UP_TO if up_to is None else int(up_to)
     if sched.round_limit is not None:
         up_to = min(up_to, sched.round_limit)

@@ -458,6 +458,7 @@ def from_spec(spec, seed=PROBE_SEED):
     def f_round(S, rounds):
         return spec.evaluate(np.asarray(S, dtype=np.uint8), seq_values_for_rounds(rounds))
 
+    _check_probe_memory(spec.name or "spec", n_in, 3)
     probes = np.zeros((n_in + 1, n_in), dtype=np.uint8)
     probes[1:] = np.eye(n_in, dtype=np.uint8)
     out = combined(probes)
@@ -550,6 +551,17 @@ def _takes_round(fn):
     return len(params) >= 2 or "round" in sig.parameters
 
 
+def _check_probe_memory(name, n, arrays):
+    """Refuse a state too large to probe (``gfla.limits``): the n + 1 probe states,
+    the states they map to and the matrix read off them are arrays of n + 1 x n 0/1
+    bytes. A callable holds 7 of them at its peak (peak resident memory measured at
+    n = 8192: 7.02 n^2 bytes: the probes, the identity they are filled from, the list
+    of images and its array, their sum with the constant and the transposed matrix);
+    a spec at least 3 (the probes, their images, the sum)."""
+    from ...limits import Workspace
+    Workspace(f"{name}: linearising a {n}-bit state").add(arrays, (n + 1, n), 1).check()
+
+
 def from_callable(fn, state_bits=None, name=None, seed=PROBE_SEED):
     """Linearise a Python callable mapping a state to the next.
 
@@ -603,6 +615,7 @@ def from_callable(fn, state_bits=None, name=None, seed=PROBE_SEED):
     def f_round(S, rounds):
         return np.array([call(s, int(r)) for s, r in zip(S, rounds)], dtype=np.uint8)
 
+    _check_probe_memory(name, n, 7)
     probes = np.zeros((n + 1, n), dtype=np.uint8)
     probes[1:] = np.eye(n, dtype=np.uint8)
     out = f_round(probes, np.zeros(n + 1, dtype=np.int64))

@@ -25,6 +25,15 @@ def _elements(F, values, name, min_len=1):
     return [int(v) for v in arr]
 
 
+def _check_size(F, what, rows, cols, matrices):
+    """Refuse a constructor whose result would not fit: ``matrices`` int64 arrays of
+    rows x cols are alive while it is built (index or power tables, the matrix, the
+    field's validated copies); see :mod:`gfla.limits`."""
+    from ...limits import check_matrices
+    check_matrices(f"{what} matrix of {rows} x {cols} over {F.spec}", matrices,
+                   (rows, cols), 8)
+
+
 def circulant(F, first_row):
     """Circulant matrix with the given first row; row i is the first row rotated right
     by i places: ``C[i, j] = c[(j - i) mod n]``.
@@ -58,6 +67,7 @@ def circulant(F, first_row):
     """
     c = _elements(F, first_row, "first_row")
     n = len(c)
+    _check_size(F, "circulant", n, n, 4)    # index table, gathered matrix, 2 copies
     idx = (np.arange(n)[None, :] - np.arange(n)[:, None]) % n
     return F.asarray(np.asarray(c, dtype=np.int64)[idx], name="circulant")
 
@@ -92,6 +102,7 @@ def hadamard_form(F, h):
     n = len(h)
     if n & (n - 1):
         raise InputError(f"a Hadamard-form matrix needs a length that is a power of two, got {n}")
+    _check_size(F, "Hadamard-form", n, n, 4)    # index table, gathered matrix, 2 copies
     idx = np.arange(n)[:, None] ^ np.arange(n)[None, :]
     return F.asarray(np.asarray(h, dtype=np.int64)[idx], name="hadamard form")
 
@@ -129,6 +140,7 @@ def cauchy(F, x, y):
     """
     xs = _elements(F, x, "x")
     ys = _elements(F, y, "y")
+    _check_size(F, "Cauchy", len(xs), len(ys), 4)    # sums, inverses, 2 copies
     X = np.asarray(xs, dtype=np.int64)[:, None]
     Y = np.asarray(ys, dtype=np.int64)[None, :]
     S = F.add(np.broadcast_to(X, (len(xs), len(ys))), np.broadcast_to(Y, (len(xs), len(ys))))
@@ -163,6 +175,7 @@ def vandermonde(F, points, ncols=None):
     m = len(p) if ncols is None else int(ncols)
     if m < 1:
         raise InputError(f"`ncols` must be at least 1, got {m}")
+    _check_size(F, "Vandermonde", len(p), m, 3)    # the matrix and the field's 2 copies
     out = np.empty((len(p), m), dtype=np.int64)
     col = np.ones(len(p), dtype=np.int64)
     P = np.asarray(p, dtype=np.int64)
@@ -207,6 +220,7 @@ def companion(F, poly):
         raise InputError(f"the companion polynomial must be monic (leading coefficient 1), "
                          f"got leading coefficient {c[0]}")
     n = len(c) - 1
+    _check_size(F, "companion", n, n, 3)    # the matrix and the field's 2 copies
     low_first = np.asarray(c[1:][::-1], dtype=np.int64)     # c_0 .. c_{n-1}
     A = np.zeros((n, n), dtype=np.int64)
     A[np.arange(n - 1), np.arange(1, n)] = 1

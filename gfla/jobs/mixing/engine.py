@@ -89,6 +89,12 @@ def subset_tables(n):
     if n > MAX_MDS_ROWS:
         raise InputError(f"subsets of {n} elements are beyond this job's tables "
                          f"(at most {MAX_MDS_ROWS})")
+    from ...limits import Workspace
+    # the masks' bits while they are built: n shifted int64 copies of the 2^n masks
+    # and their 0/1 bytes, then the per-mask row lists (int32, n 2^(n-1) entries)
+    (Workspace(f"the subset tables of {n} rows (2^{n} row sets)")
+     .add(1, (1 << n, n), 9, "bit table").add(1, (n << max(0, n - 1),), 4, "row list")
+     .check())
     all_masks = np.arange(1 << n, dtype=np.int64)
     pop = np.zeros(1 << n, dtype=np.int64)
     for i in range(n):
