@@ -871,3 +871,13 @@ def test_kill_after_every_batch_fsync(jsonl_small, npy_small, tmp_path, fmt):
     case = _Jsonl(jsonl_small, "small") if fmt == "jsonl" else _Npy(npy_small, "small")
     assert _kill_at_calls(case, tmp_path, "os.fsync") >= 10
 
+
+def test_kill_while_writing_the_npy_sidecar(npy_small, tmp_path):
+    # The sidecar inverses.json is written once, after the last chunk: a kill right
+    # after any call that creates or renames it must leave it complete or absent.
+    case = _Npy(npy_small, "small")
+    kills = 0
+    for name in ("builtins.open", "os.open", "os.replace", "os.rename"):
+        kills += _kill_at_calls(case, tmp_path / name, name, "inverses.json")
+    assert kills >= 1
+
