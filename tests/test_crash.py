@@ -881,3 +881,27 @@ def test_kill_while_writing_the_npy_sidecar(npy_small, tmp_path):
         kills += _kill_at_calls(case, tmp_path / name, name, "inverses.json")
     assert kills >= 1
 
+
+def test_kill_while_the_journal_is_recreated(jsonl_small, tmp_path):
+    # A run killed after chunk 1's output is durable but before its journal entry (the
+    # 4th fsync) leaves output and a journal with no chunk; --resume then starts over
+    # and recreates the journal. A kill right after any call that opens, creates or
+    # renames the journal must leave a state a further --resume completes from.
+    case = _Jsonl(jsonl_small, "small")
+    kills = 0
+    for name in ("builtins.open", "os.open", "os.replace", "os.rename"):
+        for nth in range(1, 20):
+            (tmp_path / f"{name}-{nth}").mkdir()
+            work = case.prepare(tmp_path / f"{name}-{nth}")
+            first = crashkit.kill_on_call(case.argv(work, False)[len(GFLA):], "os.fsync", 4)
+            assert first.returncode == -9, first.stderr
+            r = crashkit.kill_on_call(case.argv(work, True)[len(GFLA):], name, nth,
+                                      "after", ".journal")
+            if r.returncode != -9:
+                case.check_final(work, r)
+                break
+            kills += 1
+            print(f"crash call {case.name}: resume killed after {name} #{nth} (.journal)")
+            case.check_after_kill(work)
+            case.check_final(work, case.rerun(work))
+    assert kills >= 1

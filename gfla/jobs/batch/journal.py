@@ -128,14 +128,16 @@ class Journal:
         return entries, valid
 
     def create(self, header):
-        """Start a new journal with its header entry (replacing any old one)."""
+        """Start a new journal with its header entry, replacing any old one in one step
+        (a crash leaves the old journal or the new header, never an empty journal
+        beside outputs that a resume would then refuse)."""
         self.close()
         try:
-            self._fh = open(self.path, "wb")
+            write_whole(self.path, _encode(header))
+            self._fh = open(self.path, "r+b")
         except OSError as exc:
             raise InputError(f"{self.path}: cannot be written ({exc.strerror or exc})") from None
-        self.append(header)
-        fsync_directory(self.path)
+        self._fh.seek(0, os.SEEK_END)
 
     def reopen(self, valid_bytes):
         """Continue an existing journal after its last valid entry."""
