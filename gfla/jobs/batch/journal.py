@@ -73,10 +73,10 @@ def write_whole(path, data):
     fd, temporary = tempfile.mkstemp(prefix=f".{os.path.basename(path)}.gfla-partial-",
                                      dir=directory)
     try:
-        mask = os.umask(0)
-        os.umask(mask)
-        os.fchmod(fd, 0o666 & ~mask)
         with os.fdopen(fd, "wb") as fh:
+            mask = os.umask(0)
+            os.umask(mask)
+            os.fchmod(fh.fileno(), 0o666 & ~mask)  # the mode open() would have given
             fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())
