@@ -14,7 +14,6 @@ import json
 import os
 import pathlib
 import random
-import signal
 import subprocess
 import sys
 import time
@@ -23,6 +22,7 @@ import galois
 import numpy as np
 import pytest
 
+import crashkit
 import gfla
 from gfla.jobs.batch import run
 
@@ -364,30 +364,11 @@ def _crash_records():
     return records
 
 
-def _journal_chunks(path):
-    try:
-        text = pathlib.Path(path).read_bytes()
-    except FileNotFoundError:
-        return -1
-    return text.count(b'"kind":"chunk"') + 2 * text.count(b'"kind":"done"')
-
-
 def _start(args, resume=False):
     cmd = [sys.executable, "-m", "gfla.cli.batch", *map(str, args)]
     if resume:
         cmd.append("--resume")
-    return subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
-                            start_new_session=True)
-
-
-def _wait_chunks(p, journal, count, limit=120):
-    """Poll until the journal holds ``count`` chunks (or the run ends)."""
-    t0 = time.perf_counter()
-    while _journal_chunks(journal) < count and p.poll() is None:
-        if time.perf_counter() - t0 > limit:
-            break
-        time.sleep(0.002)
-    return time.perf_counter() - t0
+    return crashkit.start(cmd)
 
 
 CRASH_CHUNK = 10
@@ -401,7 +382,7 @@ def crash_case(tmp_path_factory):
                        ['not json at all\n', '{"id": "last", "field": "GF(7)", "op": "de'])
     out = base / "clean.jsonl"
     p = _start(["run", inp, "--out", out, "--chunk-size", CRASH_CHUNK, "-q"])
-    _wait_chunks(p, str(out) + ".journal", 1)
+    crashkit.wait_chunks(p, str(out) + ".journal", 1)
     t0 = time.perf_counter()
     assert p.wait() == 1
     chunks = -(-(len(records) + 2) // CRASH_CHUNK)
@@ -425,13 +406,11 @@ def _kill_and_resume(inp, out, timing, rng, kills, extra=(), anywhere=False):
         if anywhere and attempt == 0:
             time.sleep(rng.uniform(0.0, 1.5 + chunks * per_chunk))
         else:
-            low = max(1, _journal_chunks(journal) + 1)
-            _wait_chunks(p, journal, rng.randint(low, max(low, chunks - 2)))
+            low = max(1, crashkit.journal_chunks(journal) + 1)
+            crashkit.wait_chunks(p, journal, rng.randint(low, max(low, chunks - 2)))
             time.sleep(rng.uniform(0.0, per_chunk))
-        if p.poll() is None:
-            os.killpg(p.pid, signal.SIGKILL)
-        p.wait()
-        seen.append(_journal_chunks(journal))
+        crashkit.kill(p)
+        seen.append(crashkit.journal_chunks(journal))
     return _cli(*args, "--resume"), seen
 
 
@@ -476,12 +455,9 @@ def test_kill_9_then_resume_bulk(tmp_path):
     for trial in range(1):
         out = tmp_path / f"r{trial}.npy"
         args = ["run", inp, "--out", out, "--chunk-size", "40", "-q"]
-        p = subprocess.Popen([sys.executable, "-m", "gfla.cli.batch", *map(str, args)],
-                             start_new_session=True, stderr=subprocess.DEVNULL)
+        p = _start(args)
         time.sleep(random.Random(trial).uniform(1.0, 2.5))
-        if p.poll() is None:
-            os.killpg(p.pid, signal.SIGKILL)
-        p.wait()
+        crashkit.kill(p)
         r = _cli(*args, "--resume")
         assert r.returncode == 1, r.stderr
         assert np.array_equal(np.load(out), np.load(tmp_path / "clean.npy"))

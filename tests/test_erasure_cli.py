@@ -22,6 +22,7 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 
+from crashkit import snapshot
 from gfla.cli.erasure import _Progress, erasure
 
 GF256 = galois.GF(2**8, irreducible_poly=0x11D)  # gfla's default GF(2^8) modulus
@@ -71,17 +72,6 @@ def check_plan(G, record):
     assert len(read) == G.shape[1]
     if rebuild:
         assert np.array_equal(M @ G[read], G[rebuild])
-
-
-def snapshot(root):
-    """Every file under root with its SHA-256 (to show that nothing was written)."""
-    out = {}
-    for dirpath, _, files in os.walk(root):
-        for name in files:
-            path = os.path.join(dirpath, name)
-            with open(path, "rb") as fh:
-                out[os.path.relpath(path, root)] = hashlib.sha256(fh.read()).hexdigest()
-    return out
 
 
 # --------------------------------------------------------------------------- help

@@ -440,7 +440,7 @@ def _run_bulk(path, out, header, workers, resume, engine, scheduler, chunk_size,
     import numpy as np
 
     from .bulk import bulk_paths, open_bulk, process_stack, result_layout
-    from .journal import Journal, fsync_directory
+    from .journal import Journal, fsync_directory, write_whole
     t0 = time.perf_counter()
     bulk = open_bulk(path, chunk_size=chunk_size, workers=workers,
                      remote_workers=engine == "dask" and scheduler is not None)
@@ -545,11 +545,8 @@ def _run_bulk(path, out, header, workers, resume, engine, scheduler, chunk_size,
                    "input": os.path.basename(path)}
         if bulk.F.modulus is not None:
             sidecar["modulus"] = hex(bulk.F.modulus)
-        with open(side_path, "w") as fh:
-            json.dump(sidecar, fh, indent=2)
-            fh.write("\n")
-            fh.flush()
-            os.fsync(fh.fileno())
+        # In one step: a crash never leaves a partial sidecar under its name.
+        write_whole(side_path, (json.dumps(sidecar, indent=2) + "\n").encode("utf-8"))
         journal.append({"kind": "done", "seq": seq, "stop": N, "errors_bytes": errbytes,
                         "records": records, "failed": failed, "kinds": dict(counts),
                         "seconds": seconds})

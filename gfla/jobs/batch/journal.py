@@ -21,11 +21,12 @@ References
 
 import json
 import os
+import tempfile
 import zlib
 
 from ...errors import InputError
 
-__all__ = ["Journal", "JOURNAL_FORMAT", "fsync_directory"]
+__all__ = ["Journal", "JOURNAL_FORMAT", "fsync_directory", "write_whole"]
 
 JOURNAL_FORMAT = "gfla-batch-journal-1"
 
@@ -60,6 +61,33 @@ def fsync_directory(path):
         pass
     finally:
         os.close(fd)
+
+
+def write_whole(path, data):
+    """Write ``data`` (bytes) to ``path`` in one step: into a hidden temporary beside it
+    (``.NAME.gfla-partial-*``), fsync'd, then renamed over ``path``. A crash leaves the
+    old file or the new one under the name, never a partial one (at worst a stale
+    temporary, which nothing reads)."""
+    path = os.fspath(path)
+    directory = os.path.dirname(os.path.abspath(path))
+    fd, temporary = tempfile.mkstemp(prefix=f".{os.path.basename(path)}.gfla-partial-",
+                                     dir=directory)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            mask = os.umask(0)
+            os.umask(mask)
+            os.fchmod(fh.fileno(), 0o666 & ~mask)  # the mode open() would have given
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(temporary, path)
+    except BaseException:
+        try:
+            os.unlink(temporary)
+        except OSError:
+            pass
+        raise
+    fsync_directory(path)
 
 
 class Journal:
@@ -100,14 +128,16 @@ class Journal:
         return entries, valid
 
     def create(self, header):
-        """Start a new journal with its header entry (replacing any old one)."""
+        """Start a new journal with its header entry, replacing any old one in one step
+        (a crash leaves the old journal or the new header, never an empty journal
+        beside outputs that a resume would then refuse)."""
         self.close()
         try:
-            self._fh = open(self.path, "wb")
+            write_whole(self.path, _encode(header))
+            self._fh = open(self.path, "r+b")
         except OSError as exc:
             raise InputError(f"{self.path}: cannot be written ({exc.strerror or exc})") from None
-        self.append(header)
-        fsync_directory(self.path)
+        self._fh.seek(0, os.SEEK_END)
 
     def reopen(self, valid_bytes):
         """Continue an existing journal after its last valid entry."""
