@@ -472,21 +472,32 @@ def test_resume_rules(tmp_path):
     recs = [{"id": i, "field": "GF(7)", "op": "det", "matrix": [[i % 7]]} for i in range(50)]
     inp = _write_jsonl(tmp_path / "in.jsonl", recs)
     out = tmp_path / "out.jsonl"
-    # An unfinished run (journal without its 'done' entry) is not silently overwritten.
+    # An unfinished run (journal without its 'done' entry, outputs still under their
+    # working names) is not silently overwritten.
     run(inp, out, chunk_size=10)
+    partial = pathlib.Path(str(out) + ".partial")
     journal = pathlib.Path(str(out) + ".journal")
     lines = journal.read_bytes().splitlines(keepends=True)
-    journal.write_bytes(b"".join(lines[:3]) + lines[3][:10])  # torn entry
+
+    def unfinish(journal_bytes, outputs):
+        journal.write_bytes(journal_bytes)
+        for name in outputs:
+            os.replace(name, str(name) + ".partial")
+
+    unfinish(b"".join(lines[:3]) + lines[3][:10], [out])  # a torn entry
     r = _cli_here("run", inp, "--out", out, "-q")
     assert r.returncode == 2 and "--resume" in r.stderr and r.stderr.count("\n") == 1
     r = _cli_here("run", inp, "--out", out, "-q", "--resume")
     assert r.returncode == 0, r.stderr
     assert [line["id"] for line in _read_jsonl(out)] == list(range(50))
-    # Resuming a finished run does nothing and says so.
+    assert not partial.exists()
+    # Resuming a finished run does nothing and says so; a new run does not overwrite it.
     r = _cli_here("run", inp, "--out", out, "--resume")
     assert r.returncode == 0 and "nothing to do" in r.stderr
+    r = _cli_here("run", inp, "--out", out, "-q")
+    assert r.returncode == 2 and "already exists" in r.stderr
     # A changed input cannot be resumed into the old output.
-    journal.write_bytes(b"".join(lines[:3]))
+    unfinish(b"".join(lines[:3]), [out])
     _write_jsonl(inp, recs[:40])
     r = _cli_here("run", inp, "--out", out, "-q", "--resume")
     assert r.returncode == 2 and "another input" in r.stderr
@@ -496,6 +507,9 @@ def test_resume_rules(tmp_path):
     run(npy, tmp_path / "r.npy", chunk_size=10)
     bj = tmp_path / "r.npy.journal"
     bj.write_bytes(b"".join(bj.read_bytes().splitlines(keepends=True)[:2]))
+    for name in ("r.npy", "r.errors.jsonl"):
+        os.replace(tmp_path / name, tmp_path / (name + ".partial"))
+    os.remove(tmp_path / "r.json")
     (tmp_path / "s.json").write_text('{"field": "GF(7)", "op": "rank"}')
     r = _cli_here("run", npy, "--out", tmp_path / "r.npy", "-q", "--resume")
     assert r.returncode == 2 and "another sidecar (op differs)" in r.stderr

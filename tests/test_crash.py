@@ -33,6 +33,7 @@ command on tens of MiB / 2.5e5 records.
 import collections
 import json
 import os
+import pathlib
 import random
 import shutil
 import subprocess
@@ -542,6 +543,9 @@ def _journal_state(path):
     return state, state is not None and state["kind"] == "done"
 
 
+PARTIAL = ".partial"  # working names of batch outputs until the run is done
+
+
 class _BatchCase:
     """Shared parts of the two batch formats: trials kill the run (and in a third of
     them the first resume); the final ``--resume`` must give the clean bytes."""
@@ -571,14 +575,17 @@ class _BatchCase:
 
     def written(self, work, before):
         """Fraction of the clean output's bytes written (results for JSON Lines, the
-        errors file for .npy, whose results file is sized up front)."""
+        errors file for .npy, whose results file is sized up front), under the working
+        name while the run goes, under the final name once it is published."""
         path, total = work / self.data.progress_file, len(self.data.progress_bytes)
 
         def fraction():
-            try:
-                return os.path.getsize(path) / total
-            except FileNotFoundError:
-                return 0.0
+            for name in (str(path) + PARTIAL, path):
+                try:
+                    return os.path.getsize(name) / total
+                except FileNotFoundError:
+                    pass
+            return 0.0
         return fraction
 
     def rerun(self, work):
@@ -633,8 +640,10 @@ class _Jsonl(_BatchCase):
         out = work / self.data.out_name
         state, done = _journal_state(str(out) + ".journal")
         if done:
-            return AFTER, "journal done"
-        size = os.path.getsize(out) if os.path.exists(out) else 0
+            return AFTER, ("journal done, published" if os.path.exists(out)
+                           else "journal done, not yet published")
+        work_file = str(out) + PARTIAL
+        size = os.path.getsize(work_file) if os.path.exists(work_file) else 0
         committed = state["output_bytes"] if state else 0
         if state is None and size == 0:
             if not os.path.exists(str(out) + ".journal"):
@@ -646,10 +655,16 @@ class _Jsonl(_BatchCase):
 
     def check_after_kill(self, work):
         out = work / self.data.out_name
-        assert set(_visible(work)) <= {out.name, out.name + ".journal"}, _visible(work)
+        assert set(_visible(work)) <= {out.name, out.name + PARTIAL,
+                                       out.name + ".journal"}, _visible(work)
         _hidden(work)
         state, done = _journal_state(str(out) + ".journal")
-        data = out.read_bytes() if os.path.exists(out) else b""
+        if os.path.exists(out):  # a final name only ever holds the finished output
+            assert done and out.read_bytes() == self.data.clean
+            assert not os.path.exists(str(out) + PARTIAL)
+            return
+        work_file = pathlib.Path(str(out) + PARTIAL)
+        data = work_file.read_bytes() if work_file.exists() else b""
         committed = state["output_bytes"] if state else 0
         assert data[:committed] == self.data.clean[:committed]
         assert len(data) >= committed
@@ -704,14 +719,15 @@ class _Npy(_BatchCase):
     def where(self, work, before):
         state, done = _journal_state(str(work / "inverses.npy.journal"))
         if done:
-            return AFTER, "journal done"
-        if os.path.exists(work / "inverses.json"):
+            return AFTER, ("journal done, published" if os.path.exists(work / "inverses.json")
+                           else "journal done, not yet published")
+        if os.path.exists(work / ("inverses.json" + PARTIAL)):
             return AFTER, "sidecar written, journal not done"
         if state is None:
             if not os.path.exists(work / "inverses.npy.journal"):
                 return BEFORE, "start-up (nothing written)"
-            if os.path.getsize(work / "inverses.errors.jsonl") if os.path.exists(
-                    work / "inverses.errors.jsonl") else 0:
+            errors = work / ("inverses.errors.jsonl" + PARTIAL)
+            if os.path.getsize(errors) if os.path.exists(errors) else 0:
                 return MID, "first chunk written, not committed"
             return BEFORE, "journal begun, no chunk committed"
         if state["stop"] == self.data.count:
@@ -720,11 +736,17 @@ class _Npy(_BatchCase):
 
     def check_after_kill(self, work):
         d = self.data
-        assert set(_visible(work)) <= set(d.files) | {"inverses.npy.journal"}, _visible(work)
+        assert set(_visible(work)) <= ({"inverses.npy.journal"} | set(d.files)
+                                       | {n + PARTIAL for n in d.files}), _visible(work)
         _hidden(work)
         state, done = _journal_state(str(work / "inverses.npy.journal"))
-        got = {n: (work / n).read_bytes() for n in d.files if os.path.exists(work / n)}
-        if "inverses.json" in got:  # written once, at the end: complete or absent
+        for n in d.files:  # a final name only ever holds the finished file
+            if os.path.exists(work / n):
+                assert done and (work / n).read_bytes() == d.clean[n], n
+        # Each file under its final name, else under its working name.
+        got = {n: (work / m).read_bytes() for n in d.files for m in (n, n + PARTIAL)
+               if os.path.exists(work / m)}
+        if "inverses.json" in got:  # written whole, at the end: complete or absent
             assert got["inverses.json"] == d.clean["inverses.json"]
         if state is not None:
             upto = d.data_offset + state["stop"] * d.row_bytes

@@ -297,12 +297,35 @@ def _state_after(entries):
     return None
 
 
+PARTIAL = ".partial"
+
+
+def _publish(names):
+    """Rename each working file (``NAME.partial``) that is still there to its final
+    name, then make the renames durable. Safe to repeat: a resumed run that was killed
+    between two renames finishes the rest."""
+    from .journal import fsync_directory
+    moved = False
+    for final in names:
+        if os.path.exists(final + PARTIAL):
+            os.replace(final + PARTIAL, final)
+            moved = True
+    if moved:
+        fsync_directory(names[0])
+
+
 def _open_journal(journal, header, resume, outputs):
-    """(entries, last state or None, done) after checking resume rules."""
+    """(entries, last state or None, done) after checking resume rules.
+
+    ``outputs`` are the final names. While a run is going its outputs are written under
+    working names (``NAME.partial``), so a file under a final name is always complete;
+    they are renamed once the journal records the run as done.
+    """
     entries, valid = journal.read()
     if resume:
         if not entries:
-            present = [p for p in outputs if os.path.exists(p) and os.path.getsize(p)]
+            present = [p for name in outputs for p in (name, name + PARTIAL)
+                       if os.path.exists(p) and os.path.getsize(p)]
             if present:
                 raise InputError(f"cannot resume: {present[0]} exists but there is no "
                                  f"journal {journal.path}")
@@ -312,10 +335,16 @@ def _open_journal(journal, header, resume, outputs):
         _same_input(entries[0], header, journal.path)
         state = _state_after(entries)
         done = state is not None and state.get("kind") == "done"
+        if done:
+            _publish(outputs)
         return state, done, valid
     if entries and (_state_after(entries) or {}).get("kind") != "done":
         raise InputError(f"{outputs[0]}: an unfinished run is recorded in {journal.path}; "
                          "add --resume to continue it, or delete both to start over")
+    for name in outputs:
+        if os.path.exists(name):
+            raise InputError(f"{name} already exists: gfla does not overwrite results; "
+                             "pick another --out or delete it")
     return None, False, 0
 
 
@@ -355,19 +384,20 @@ def _run_jsonl(path, out, header, workers, resume, engine, scheduler, chunk_line
     registry = _known_ids(path, base["input_offset"], chunk_lines, check_ids)
     executor = _executor(engine, workers, scheduler)
     try:
+        work = out + PARTIAL
         if resumed:
-            have = os.path.getsize(out) if os.path.exists(out) else -1
+            have = os.path.getsize(work) if os.path.exists(work) else -1
             if have < base["output_bytes"]:
-                raise InputError(f"cannot resume: {out} is shorter than {journal.path} "
+                raise InputError(f"cannot resume: {work} is shorter than {journal.path} "
                                  "records; delete both to start over")
-            outfh = open(out, "r+b")
+            outfh = open(work, "r+b")
             outfh.truncate(base["output_bytes"])
             outfh.seek(base["output_bytes"])
             journal.reopen(valid)
         else:
             journal.create(header)
-            outfh = open(out, "wb")
-            fsync_directory(out)
+            outfh = open(work, "wb")
+            fsync_directory(work)
     except BaseException as exc:
         journal.close()
         executor.close()
@@ -424,6 +454,7 @@ def _run_jsonl(path, out, header, workers, resume, engine, scheduler, chunk_line
         journal.append({"kind": "done", "seq": seq, "input_offset": total,
                         "output_bytes": outbytes, "records": records, "failed": failed,
                         "kinds": dict(counts), "seconds": seconds})
+        _publish([out])
     finally:
         executor.close()
         outfh.close()
@@ -453,7 +484,9 @@ def _run_bulk(path, out, header, workers, resume, engine, scheduler, chunk_size,
              "journal": journal.path}
     header = dict(header, op=bulk.op.name, field=bulk.F.spec, modulus=bulk.F.modulus,
                   result_shape=list(shape), result_dtype=str(dtype))
-    state, done, valid = _open_journal(journal, header, resume, [res_path, err_path])
+    finals = [res_path, err_path, side_path]
+    state, done, valid = _open_journal(journal, header, resume, finals)
+    res_work, err_work = res_path + PARTIAL, err_path + PARTIAL
     base = {"stop": 0, "errors_bytes": 0, "records": 0, "failed": 0, "kinds": {}, "seq": 0,
             "seconds": 0.0}
     if state is not None:
@@ -467,31 +500,31 @@ def _run_bulk(path, out, header, workers, resume, engine, scheduler, chunk_size,
     try:
         if resumed:
             try:
-                mm = np.load(res_path, mmap_mode="r", allow_pickle=False)
+                mm = np.load(res_work, mmap_mode="r", allow_pickle=False)
             except (OSError, ValueError) as exc:
-                raise InputError(f"cannot resume: {res_path} is not readable "
+                raise InputError(f"cannot resume: {res_work} is not readable "
                                  f"({_one_line(exc)}); delete it and {journal.path}") from None
             if tuple(mm.shape) != tuple(shape) or mm.dtype != dtype:
-                raise InputError(f"cannot resume: {res_path} has shape {mm.shape} and "
+                raise InputError(f"cannot resume: {res_work} has shape {mm.shape} and "
                                  f"dtype {mm.dtype}, the run needs {shape} {dtype}")
             data_offset = mm.offset
             del mm
-            have = os.path.getsize(err_path) if os.path.exists(err_path) else -1
+            have = os.path.getsize(err_work) if os.path.exists(err_work) else -1
             if have < base["errors_bytes"]:
-                raise InputError(f"cannot resume: {err_path} is shorter than "
+                raise InputError(f"cannot resume: {err_work} is shorter than "
                                  f"{journal.path} records; delete the outputs to start over")
-            errfh = open(err_path, "r+b")
+            errfh = open(err_work, "r+b")
             errfh.truncate(base["errors_bytes"])
             errfh.seek(base["errors_bytes"])
             journal.reopen(valid)
         else:
             journal.create(header)
-            mm = np.lib.format.open_memmap(res_path, mode="w+", dtype=dtype, shape=shape)
+            mm = np.lib.format.open_memmap(res_work, mode="w+", dtype=dtype, shape=shape)
             data_offset = mm.offset
             del mm
-            errfh = open(err_path, "wb")
-            fsync_directory(res_path)
-        resfd = os.open(res_path, os.O_RDWR)
+            errfh = open(err_work, "wb")
+            fsync_directory(res_work)
+        resfd = os.open(res_work, os.O_RDWR)
     except BaseException as exc:
         journal.close()
         executor.close()
@@ -545,11 +578,14 @@ def _run_bulk(path, out, header, workers, resume, engine, scheduler, chunk_size,
                    "input": os.path.basename(path)}
         if bulk.F.modulus is not None:
             sidecar["modulus"] = hex(bulk.F.modulus)
-        # In one step: a crash never leaves a partial sidecar under its name.
-        write_whole(side_path, (json.dumps(sidecar, indent=2) + "\n").encode("utf-8"))
+        # In one step: a crash never leaves a partial sidecar, even under its working
+        # name; all three files get their final names once the journal says done.
+        write_whole(side_path + PARTIAL,
+                    (json.dumps(sidecar, indent=2) + "\n").encode("utf-8"))
         journal.append({"kind": "done", "seq": seq, "stop": N, "errors_bytes": errbytes,
                         "records": records, "failed": failed, "kinds": dict(counts),
                         "seconds": seconds})
+        _publish(finals)
     finally:
         executor.close()
         os.close(resfd)
