@@ -38,7 +38,7 @@ from ...errors import InputError
 
 __all__ = ["MANIFEST_NAME", "FORMAT", "FORMAT_VERSION", "Manifest", "ShardEntry",
            "shard_file_name", "shard_size_for", "build_manifest", "manifest_text",
-           "load_manifest", "canonical_digest", "check_shard_name"]
+           "load_manifest", "parse_manifest", "canonical_digest", "check_shard_name"]
 
 MANIFEST_NAME = "manifest.json"
 FORMAT = "gfla-erasure-set"
@@ -162,8 +162,6 @@ def load_manifest(directory):
         edited (self-checksum mismatch), names a code gfla cannot build or builds
         differently, or names a shard file outside the directory or a symbolic link.
     """
-    from .codes import FILE_FIELDS, erasure_code
-
     directory = os.fspath(directory)
     if not os.path.exists(directory):
         raise InputError(f"{directory}: no such directory")
@@ -182,6 +180,35 @@ def load_manifest(directory):
         raise InputError(f"{where}: {st.st_size} bytes is far too large for a manifest")
     with open(path, "rb") as fh:
         raw = fh.read(st.st_size + 1)  # read(n) reserves n bytes up front: keep n small
+    return parse_manifest(raw, directory, where)
+
+
+def parse_manifest(raw, directory, where=None):
+    """Validate the bytes of a manifest that lives in ``directory``.
+
+    Parameters
+    ----------
+    raw : bytes
+        The content of ``manifest.json``.
+    directory : str
+        The shard directory (shard paths are checked against it).
+    where : str, optional
+        How messages name the manifest (default ``DIR/manifest.json``).
+
+    Returns
+    -------
+    Manifest
+
+    Raises
+    ------
+    InputError
+        As :func:`load_manifest`.
+    """
+    from .codes import FILE_FIELDS, erasure_code
+
+    directory = os.fspath(directory)
+    if where is None:
+        where = os.path.join(directory, MANIFEST_NAME)
     if len(raw) > MAX_MANIFEST_BYTES:
         raise InputError(f"{where}: far too large for a manifest")
     try:
