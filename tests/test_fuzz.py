@@ -989,3 +989,57 @@ def test_modulus_forms_still_read():
     # 0x11b is x^8+x^4+x^3+x+1, the AES polynomial (FIPS 197, section 4.2).
     for text in ("0x11b", "11b", " 0X11B ", "1_1b", 0x11b, np.uint16(0x11b)):
         assert gfla.field("GF(2^8)", modulus=text).modulus == 0x11b
+
+
+def _raw_npy(header, data=b"", major=1):
+    """A .npy file written by hand (NumPy format description: magic, version, little
+    endian header length, header text)."""
+    header = header.encode("latin1")
+    size = struct.pack("<H", len(header)) if major == 1 else struct.pack("<I", len(header))
+    return b"\x93NUMPY" + bytes([major, 0]) + size + header + data
+
+
+@pytest.mark.parametrize("data,match", [
+    # a dimension beyond int64: numpy raised OverflowError
+    (_raw_npy("{'descr': '<i8', 'fortran_order': False, 'shape': (%s,), }" % HUGE),
+     "bad header|ends early"),
+    # an unterminated header dict: numpy raised tokenize.TokenError
+    (_raw_npy("{'descr': '<i8', 'fortran_order': False, 'shape': (0,), "), "bad header"),
+    # a shape whose data would be 8 * 10^24 bytes: must not be allocated
+    (_raw_npy("{'descr': '<i8', 'fortran_order': False, 'shape': (10**12, 10**12), }"),
+     "bad header|ends early"),
+    (_raw_npy("{'descr': '<i8', 'fortran_order': False, 'shape': (1000000, 1000000), }",
+              b"\0" * 64), "ends early"),
+    (_raw_npy("{'descr': '<i8', 'fortran_order': False, 'shape': (-1, 4), }"), "negative"),
+    (_raw_npy("{'descr': '<i8', 'fortran_order': False, 'shape': (2, 2), }", b"\0" * 31),
+     "ends early"),
+    (_raw_npy("{'descr': [('a', '<i4')], 'fortran_order': False, 'shape': (1, 1), }",
+              b"\0" * 4), "integer dtype"),
+    (_raw_npy("{'descr': '|O', 'fortran_order': False, 'shape': (1, 1), }",
+              pickle.dumps([_Trap()])), "Python objects"),
+    (_raw_npy("{'descr': '<i8', 'fortran_order': False, 'shape': (1, 1), }", b"\0" * 8,
+              major=3), "version 3.0"),
+    (pickle.dumps(_Trap()), "pickle"),
+    (b"PK\x03\x04" + b"\0" * 40, "zip archive"),
+], ids=["huge-dim", "unterminated", "10^24-bytes", "10^12-entries", "negative-dim",
+        "short-data", "structured", "object-trap", "version-3", "bare-pickle", "zip"])
+def test_npy_header_regressions(tmp_path, data, match):
+    # Without the .npy suffix a file is read as .npy only when it starts with the magic.
+    names = ("m.npy", "m") if data.startswith(b"\x93NUMPY") else ("m.npy",)
+    for name in names:
+        path = tmp_path / name
+        path.write_bytes(data)
+        with pytest.raises(InputError, match=match):
+            load_matrix_file(path)
+        with pytest.raises(InputError, match=match):
+            load_vector_file(path)
+    assert not _trap_sprung()
+
+
+def test_npy_valid_files_still_load(tmp_path):
+    # numpy's own writer as the reference for the format.
+    for arr in (np.arange(6, dtype=">u2").reshape(2, 3), np.asfortranarray(np.eye(3, dtype="i1")),
+                np.ones((2, 2), dtype=bool)):
+        np.save(tmp_path / "a.npy", arr)
+        got = load_matrix_file(tmp_path / "a.npy")
+        assert got.dtype == arr.dtype and (got == arr).all()

@@ -19,7 +19,7 @@ import re
 
 from ..errors import InputError
 
-__all__ = ["parse_matrix", "parse_vector", "load_matrix_file", "load_vector_file"]
+__all__ = ["parse_matrix", "parse_vector", "load_matrix_file", "load_vector_file", "npy_header"]
 
 _DECIMAL = re.compile(r"[+-]?[0-9]+\Z")
 _PREFIXED_HEX = re.compile(r"[+-]?0[xX][0-9a-fA-F]+\Z")
@@ -180,9 +180,86 @@ def parse_vector(text, hex=False):
     )
 
 
+def npy_header(path, what="array", objects_note="only integer arrays are read"):
+    """Read and check the header of a ``.npy`` file without touching its data.
+
+    The header (NumPy's format: magic, version 1.0 or 2.0, a header length, a Python
+    dict literal giving ``descr``, ``fortran_order`` and ``shape``) is parsed by numpy's
+    own reader; whatever that reader raises on a malformed header becomes an
+    ``InputError``. Object dtypes (stored as pickles) are refused here, before any
+    data is read, and so is a shape whose data would run past the end of the file.
+
+    Returns
+    -------
+    (shape, fortran_order, dtype, data_offset)
+
+    Raises
+    ------
+    InputError
+        Missing or unreadable file, a malformed header, an unsupported version, an
+        object or non-integer dtype, a negative dimension, or fewer data bytes than
+        the header declares.
+    """
+    from numpy.lib import format as npy_format
+
+    try:
+        with open(path, "rb") as fh:
+            start = fh.read(6)
+            fh.seek(0)
+            if start[:1] == b"\x80":
+                raise InputError(f"{path}: is a Python pickle, not a .npy file; pickles are "
+                                 "never loaded")
+            if start[:4] == b"PK\x03\x04":
+                raise InputError(f"{path}: is a zip archive (.npz, several arrays), not one "
+                                 f".npy {what}")
+            try:
+                version = npy_format.read_magic(fh)
+                if version == (1, 0):
+                    shape, fortran, dtype = npy_format.read_array_header_1_0(fh)
+                elif version == (2, 0):
+                    shape, fortran, dtype = npy_format.read_array_header_2_0(fh)
+                else:
+                    raise InputError(f"{path}: .npy format version {version[0]}.{version[1]} "
+                                     "is not read here (1.0 and 2.0 are)")
+            except InputError:
+                raise
+            except Exception as exc:  # numpy's header reader raises many kinds on junk
+                raise InputError(f"{path}: not a readable .npy file (bad header: "
+                                 f"{_first_line(exc)})") from None
+            offset = fh.tell()
+            size = os.fstat(fh.fileno()).st_size
+    except FileNotFoundError:
+        raise InputError(f"{path}: no such file") from None
+    except IsADirectoryError:
+        raise InputError(f"{path}: is a directory, not a file") from None
+    except OSError as exc:
+        raise InputError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    if dtype.hasobject:
+        raise InputError(f"{path}: holds Python objects (object dtype); {objects_note}")
+    if dtype.kind not in "iub" or dtype.fields is not None or dtype.subdtype is not None:
+        raise InputError(f"{path}: has dtype {_short(str(dtype))}; an integer dtype is needed")
+    if any(d < 0 for d in shape):
+        raise InputError(f"{path}: header declares a negative dimension "
+                         f"(shape {_short(str(shape))})")
+    count = 1
+    for d in shape:
+        count *= d
+    need = count * dtype.itemsize
+    if need > size - offset:
+        raise InputError(f"{path}: ends early: the header declares shape "
+                         f"{_short(str(shape))} of {dtype} ({_short(str(need))} bytes), the "
+                         f"file holds {max(0, size - offset)} bytes of data")
+    return shape, fortran, dtype, offset
+
+
+def _short(text, limit=60):
+    return text if len(text) <= limit else text[:limit - 3] + "..."
+
+
 def _read_npy(path, what):
     import numpy as np
 
+    npy_header(path, what)
     try:
         array = np.load(path, allow_pickle=False)
     except ValueError as exc:
@@ -204,7 +281,7 @@ def _read_npy(path, what):
 
 def _first_line(exc):
     text = str(exc).strip().splitlines()
-    return text[0] if text else type(exc).__name__
+    return _short(text[0], 100) if text else type(exc).__name__
 
 
 def _read_text(path):
