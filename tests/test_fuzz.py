@@ -1043,3 +1043,38 @@ def test_npy_valid_files_still_load(tmp_path):
         np.save(tmp_path / "a.npy", arr)
         got = load_matrix_file(tmp_path / "a.npy")
         assert got.dtype == arr.dtype and (got == arr).all()
+
+
+@pytest.mark.parametrize("sidecar,match", [
+    ('{"field": "GF(7)", "op": ["inv"]}', "op must be text"),            # was TypeError
+    ('{"field": "GF(7)", "op": {"a": 1}}', "op must be text"),           # was TypeError
+    ('{"field": "GF(7)", "op": "inv", "shape": 3}', "shape 3"),          # was TypeError
+    ('{"field": "GF(7)", "op": "inv", "shape": [2.0, 2.0]}', "shape"),   # was accepted
+    ('{"field": "GF(7)", "op": "inv", "count": true}', "count True"),    # was accepted
+    ('{"field": "GF(7)", "op": "inv", "dtype": ["uint8"]}', "dtype"),
+    ('{"field": "GF(7)", "op": "solve", "rhs": 5}', "rhs must name"),
+    ('{"field": "GF(7)", "op": "inv", "x": ' + "[" * 100000 + "]" * 100000 + "}",
+     "nested too deeply"),                                                # was RecursionError
+    ('{"field": "GF(7)", "op": "inv", "count": ' + "9" * 5000 + "}", "not a readable JSON"),
+    ('{"field": "GF(7)", "op": "power", "exponent": "(2^65536)^65536"}', "exceeds"),
+])
+def test_bulk_sidecar_regressions(tmp_path, sidecar, match):
+    from gfla.jobs.batch.bulk import open_bulk
+    np.save(tmp_path / "s.npy", np.ones((1, 2, 2), dtype=np.uint8))
+    (tmp_path / "s.json").write_text(sidecar)
+    with pytest.raises(InputError, match=match):
+        open_bulk(tmp_path / "s.npy")
+
+
+def test_bulk_stack_header_checked_first(tmp_path):
+    from gfla.jobs.batch.bulk import open_bulk
+    (tmp_path / "s.json").write_text('{"field": "GF(7)", "op": "inv"}')
+    (tmp_path / "s.npy").write_bytes(_raw_npy(
+        "{'descr': '<i8', 'fortran_order': False, 'shape': (1000000000000, 1000000, 1000000), }"))
+    with pytest.raises(InputError, match="ends early"):
+        open_bulk(tmp_path / "s.npy")
+    (tmp_path / "s.npy").write_bytes(_raw_npy(
+        "{'descr': '|O', 'fortran_order': False, 'shape': (1,), }", pickle.dumps([_Trap()])))
+    with pytest.raises(InputError, match="different sizes"):
+        open_bulk(tmp_path / "s.npy")
+    assert not _trap_sprung()

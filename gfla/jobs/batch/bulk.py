@@ -17,6 +17,7 @@ import os
 import numpy as np
 
 from ...errors import InconsistentSystemError, InputError
+from ...io.matrix_text import npy_header
 from .ops import BULK_OPERATIONS, OPERATIONS
 from .records import error_object, field_of, limit_threads
 
@@ -38,6 +39,10 @@ def _load(path, what):
         raise InputError(f"{path}: no such file")
     if os.path.isdir(path):
         raise InputError(f"{path}: is a directory, not a file")
+    # The header first: a malformed one, an object dtype (a pickle) or a shape larger
+    # than the file is refused before numpy maps anything.
+    npy_header(path, what, objects_note="for example matrices of different sizes; "
+               f"{what} must be one integer array")
     try:
         arr = np.load(path, mmap_mode="r", allow_pickle=False)
     except ValueError as exc:
@@ -53,6 +58,10 @@ def _load(path, what):
     if arr.dtype.kind not in "iub":
         raise InputError(f"{path}: has dtype {arr.dtype}; {what} needs an integer dtype")
     return arr
+
+
+def _short(text, limit=60):
+    return text if len(text) <= limit else text[:limit - 3] + "..."
 
 
 def _first_line(exc):
@@ -144,8 +153,11 @@ def open_bulk(path):
     try:
         with open(side_path, "rb") as fh:
             sidecar = json.loads(fh.read())
+    except RecursionError:
+        raise InputError(f"{side_path}: not a readable JSON file (nested too deeply)") from None
     except (OSError, ValueError) as exc:
-        raise InputError(f"{side_path}: not a readable JSON file ({_first_line(exc)})") from None
+        raise InputError(f"{side_path}: not a readable JSON file "
+                         f"({_short(_first_line(exc))})") from None
     if not isinstance(sidecar, dict):
         raise InputError(f"{side_path}: must hold one JSON object")
     mismatch = f"sidecar {side_path} does not match {path}"
@@ -153,6 +165,9 @@ def open_bulk(path):
         if key not in sidecar:
             raise InputError(f"{side_path}: names no {key!r}")
     opname = sidecar["op"]
+    if not isinstance(opname, str):
+        raise InputError(f"{side_path}: op must be text such as 'inv', got "
+                         f"{_short(repr(opname))}")
     if opname not in OPERATIONS:
         raise InputError(f"{side_path}: unknown op {opname!r} (known: "
                          f"{', '.join(sorted(OPERATIONS))})")
@@ -169,15 +184,17 @@ def open_bulk(path):
         raise InputError(f"{path}: has shape {tuple(stack.shape)}; a stack of matrices "
                          "(N, m, n) is needed")
     N, m, n = (int(x) for x in stack.shape)
-    if "count" in sidecar and sidecar["count"] != N:
-        raise InputError(f"{mismatch}: count {sidecar['count']!r} in the sidecar, {N} "
-                         "matrices in the array")
-    if "shape" in sidecar and list(sidecar["shape"] or []) != [m, n]:
-        raise InputError(f"{mismatch}: shape {sidecar['shape']!r} in the sidecar, "
+    if "count" in sidecar and (type(sidecar["count"]) is not int or sidecar["count"] != N):
+        raise InputError(f"{mismatch}: count {_short(repr(sidecar['count']))} in the "
+                         f"sidecar, {N} matrices in the array")
+    shape = sidecar.get("shape")
+    if "shape" in sidecar and (type(shape) is not list
+                               or [type(x) for x in shape] != [int, int] or shape != [m, n]):
+        raise InputError(f"{mismatch}: shape {_short(repr(shape))} in the sidecar, "
                          f"matrices of {m} x {n} in the array")
-    if "dtype" in sidecar and str(sidecar["dtype"]) != str(stack.dtype):
-        raise InputError(f"{mismatch}: dtype {sidecar['dtype']!r} in the sidecar, "
-                         f"{stack.dtype} in the array")
+    if "dtype" in sidecar and sidecar["dtype"] != str(stack.dtype):
+        raise InputError(f"{mismatch}: dtype {_short(repr(sidecar['dtype']))} in the "
+                         f"sidecar, {stack.dtype} in the array")
     if m == 0 or n == 0:
         raise InputError(f"{path}: holds empty matrices (shape {tuple(stack.shape)})")
     if op.square and m != n:
@@ -188,8 +205,10 @@ def open_bulk(path):
         if "rhs" not in sidecar:
             raise InputError(f"{side_path}: op 'solve' needs 'rhs', the file of "
                              "right-hand sides (N, m)")
-        rhs_path = os.path.join(os.path.dirname(os.path.abspath(side_path)),
-                                str(sidecar["rhs"]))
+        if not isinstance(sidecar["rhs"], str) or not sidecar["rhs"]:
+            raise InputError(f"{side_path}: rhs must name a .npy file, got "
+                             f"{_short(repr(sidecar['rhs']))}")
+        rhs_path = os.path.join(os.path.dirname(os.path.abspath(side_path)), sidecar["rhs"])
         rhs = _load(rhs_path, "the right-hand sides")
         if rhs.shape != (N, m):
             raise InputError(f"{rhs_path}: has shape {tuple(rhs.shape)}; the right-hand "
