@@ -25,6 +25,7 @@ import io
 import json
 import os
 import pickle
+import re
 import struct
 import tempfile
 import time
@@ -1078,3 +1079,23 @@ def test_bulk_stack_header_checked_first(tmp_path):
     with pytest.raises(InputError, match="different sizes"):
         open_bulk(tmp_path / "s.npy")
     assert not _trap_sprung()
+
+
+@pytest.mark.parametrize("line,match", [
+    ('{"id": 1, "field": "GF(7)", "op": "det", "matrix": ' + "[" * 100000 + "]" * 100000 + "}",
+     "nested too deeply"),                                                # was RecursionError
+    ("[" * 100000, "nested too deeply"),
+    ('{"id": 1, "field": "GF(7)", "op": "det", "matrix": [[' + "9" * 5000 + "]]}",
+     "more than 4300 digits"),                        # was a message naming sys.set_int_...
+    ('{"id": 1, "field": "GF(7)", "op": "power", "exponent": "(2^65536)^65536", '
+     '"matrix": [[1]]}', "exceeds"),
+    ('{"id": 1, "field": "Z/2^65536", "op": "det", "matrix": [[1]]}', "far too large"),
+    ('{"id": 1, "field": "GF(2^8)", "modulus": -283, "op": "det", "matrix": [[1]]}',
+     "negative"),
+])
+def test_jsonl_regressions(line, match):
+    from gfla.jobs.batch.records import process_lines
+    result = process_lines(line.encode() + b"\n", 1)
+    (out,) = result.data.decode().splitlines()
+    error = json.loads(out)["error"]
+    assert error["kind"] == "InputError" and re.search(match, error["message"]), error

@@ -217,15 +217,20 @@ def _parse(text, line_no):
     """The record object of a line (str, stripped); raises InputError."""
     try:
         obj, end = _scan_once(text, 0)
-    except (StopIteration, ValueError):
+    except (StopIteration, ValueError, RecursionError):
         end = -1
     if end != len(text):
         try:
             json.loads(text)
-        except ValueError as exc:
-            msg = getattr(exc, "msg", str(exc)).lower()
-            where = f" (column {exc.colno})" if hasattr(exc, "colno") else ""
-            raise InputError(f"line {line_no} is not valid JSON: {msg}{where}") from None
+        except RecursionError:
+            raise InputError(f"line {line_no} is not valid JSON: nested too deeply") from None
+        except json.JSONDecodeError as exc:
+            raise InputError(f"line {line_no} is not valid JSON: {exc.msg.lower()} "
+                             f"(column {exc.colno})") from None
+        except ValueError:
+            # Python refuses to read integers of more than 4300 digits from text.
+            raise InputError(f"line {line_no} is not valid JSON for gfla: it holds an "
+                             "integer of more than 4300 digits") from None
         raise InputError(f"line {line_no} is not valid JSON")  # pragma: no cover
     if type(obj) is not dict:
         raise InputError(f"line {line_no} is not a JSON object")
@@ -321,7 +326,7 @@ def _process_lines(data, first_line):
         slots.append(None)
         try:
             obj, end = scan(text, 0)
-        except (StopIteration, ValueError, TypeError):
+        except (StopIteration, ValueError, TypeError, RecursionError):
             obj = end = None
         if end != len(text) or type(obj) is not dict:
             _reject(out, slot, text, first_line + offset, None)
