@@ -1099,3 +1099,36 @@ def test_jsonl_regressions(line, match):
     (out,) = result.data.decode().splitlines()
     error = json.loads(out)["error"]
     assert error["kind"] == "InputError" and re.search(match, error["message"]), error
+
+
+def _manifest_bytes(edit=None, reseal=True):
+    body = _base_manifest("GF(2^8)", 2, 1, "vandermonde")
+    if edit is not None:
+        edit(body)
+    if reseal:
+        body.pop("manifest_sha256", None)
+        body["manifest_sha256"] = canonical_digest(body)
+    return manifest_text(body).encode()
+
+
+@pytest.mark.parametrize("data,match", [
+    (_manifest_bytes().replace(b'"length": 1000', b'"length": ' + b"9" * 5000),
+     "more than 4300 digits"),                                            # was ValueError
+    (_manifest_bytes().replace(b'"code": {', b'"code": ' + b"[" * 100000 + b"{"),
+     "nested too deeply"),                                                # was RecursionError
+    (_manifest_bytes(lambda b: b["shards"][0].update(file="x" * 300)), "longer than"),
+    (_manifest_bytes(lambda b: b["shards"][0].update(file="\ud800.bin")), "encoding"),
+    (_manifest_bytes(lambda b: b["shards"][0].update(file="a\nb")), "control characters"),
+    (_manifest_bytes(lambda b: b["code"].update(modulus=-285)), "negative"),
+])
+def test_manifest_regressions(tmp_path, data, match):
+    with pytest.raises(InputError, match=match):
+        parse_manifest(data, str(tmp_path))
+    (tmp_path / "manifest.json").write_bytes(data)
+    with pytest.raises(InputError, match=match):
+        load_manifest(tmp_path)
+
+
+def test_manifest_bytes_of_a_valid_set_still_parse(tmp_path):
+    m = parse_manifest(_manifest_bytes(), str(tmp_path))
+    assert [s.file for s in m.shards] == ["shard-00.bin", "shard-01.bin", "shard-02.bin"]
