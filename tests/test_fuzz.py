@@ -1132,3 +1132,25 @@ def test_manifest_regressions(tmp_path, data, match):
 def test_manifest_bytes_of_a_valid_set_still_parse(tmp_path):
     m = parse_manifest(_manifest_bytes(), str(tmp_path))
     assert [s.file for s in m.shards] == ["shard-00.bin", "shard-01.bin", "shard-02.bin"]
+
+
+@pytest.mark.parametrize("text,match", [
+    ("0 0..100000000000 0", "out of range"),                              # was MemoryError
+    ("0 0.." + HUGE + " 0", "out of range"),                              # was OverflowError
+    ("0 " + "9" * 5000 + " 1", "out of range"),                           # was ValueError
+    ("0 ٣ 1", "not a bit index"),                                         # unicode digit
+    ("0 0..7 -1", "negative"),                                            # was read as 0xff
+    ("-3 0 1", "negative"),
+    ("(2^65536)^65536 0 1", "exceeds"),
+    ("0 0 " + "(" * 5000, "nested"),                                      # was RecursionError
+])
+def test_known_bits_regressions(text, match):
+    with pytest.raises(InputError, match=match):
+        parse_known_bits(text, 64)
+
+
+def test_known_bits_still_read():
+    # Bit i of 0xa5 = 10100101 (binary, plain Python ints) is round-key bit 8 + i.
+    got = parse_known_bits("3 0 1\n5 8..15 0xa5  # note\n2^3, 17, 0", 64)
+    assert [tuple(k[:3]) for k in got] == (
+        [(3, 0, 1)] + [(5, 8 + i, (0xa5 >> i) & 1) for i in range(8)] + [(8, 17, 0)])
