@@ -1154,3 +1154,24 @@ def test_known_bits_still_read():
     got = parse_known_bits("3 0 1\n5 8..15 0xa5  # note\n2^3, 17, 0", 64)
     assert [tuple(k[:3]) for k in got] == (
         [(3, 0, 1)] + [(5, 8 + i, (0xa5 >> i) & 1) for i in range(8)] + [(8, 17, 0)])
+
+
+@pytest.mark.parametrize("spec", [
+    # The old pattern backtracked cubically on these (4000 blanks: 98 s and 190 s).
+    "GF(" + " " * 4000 + "x", "Z/1" + " " * 4000 + "x", "GF" + " " * 4000,
+])
+def test_field_spec_long_blank_runs_refused(spec):
+    with pytest.raises(InputError):
+        parse_field_spec(spec)
+
+
+def test_field_spec_forms_still_read():
+    # Plain Python ints as the reference values.
+    assert parse_field_spec(" gf ( 2^8 ) ") == ("extension", (8,))
+    assert parse_field_spec("Z / (12)") == ("ring", (12,))
+    assert parse_field_spec("Z/(2^8-1)*3") == ("ring", (765,))
+    assert parse_field_spec("GF((2^5-1))") == ("prime", (31,))
+    assert parse_field_spec("GF(2**1)") == ("binary", ())
+    for bad in ("GF()", "GF(7", "Z/", "Z/(12", "F(7)"):
+        with pytest.raises(InputError):
+            parse_field_spec(bad)
