@@ -1175,3 +1175,58 @@ def test_field_spec_forms_still_read():
     for bad in ("GF()", "GF(7", "Z/", "Z/(12", "F(7)"):
         with pytest.raises(InputError):
             parse_field_spec(bad)
+
+
+_STATE = '[state]\nwidths = [16, 16]\nnames = ["k0", "k1"]\n'
+
+
+@pytest.mark.parametrize("text,match", [
+    (_STATE + 'rounds = ' + "9" * 5000 + "\n", "more than 4300 digits"),   # was ValueError
+    (_STATE + "x = " + "[" * 5000 + "]" * 5000 + "\n", "nested too deeply"),  # RecursionError
+    (_STATE + '[round_key]\nbits = ["0..100000000000"]\n', "out of range"),   # MemoryError
+    (_STATE + '[round_key]\nbits = ["0..' + "9" * 400 + '"]\n', "out of range"),
+    (_STATE + '[scratch]\nwords = 65536\nwidth = 65536\n', "more than 65536"),
+    ('[state]\nwidths = [4096]\n[[step]]\nop = "lfsr"\nwords = ["w0"]\ntaps = [0]\n'
+     'steps = 65536\n', "at most 64 bits"),                                 # ran for minutes
+    (_STATE + '[[step]]\nop = "lfsr"\nwords = ["k0"]\ntaps = [%d]\n' % 10 ** 400,
+     "a number of 401 digits"),
+])
+def test_toml_spec_regressions(text, match):
+    with pytest.raises(InputError, match=match):
+        parse_spec(text, "r.toml")
+
+
+def test_toml_header_pattern_is_linear():
+    # A multi-line string holding a line that looks like the start of a table header:
+    # the old header pattern took 18 s for 2000 blanks (its blank and name parts
+    # overlapped). The string is the spec's name, so the spec is valid.
+    spec = parse_spec('name = """\n[' + " " * 20000 + 'x\n"""\n' + _STATE, "r.toml")
+    assert spec.nbits == 32
+
+
+def test_toml_huge_rotations_and_shifts():
+    # A rotation by s is a rotation by s mod 16 (common practice); a shift by 16 bits
+    # or more leaves zeros. Checked through the evaluator on the state bits.
+    base = _STATE + '[[step]]\nop = "%s"\nword = "k0"\n%s = %d\n'
+    states = np.zeros((1, 32), dtype=np.uint8)
+    states[0, 0] = 1
+    rot = parse_spec(base % ("rotate", "left", 10 ** 400 + 3), "r.toml")
+    assert rot.evaluate(states, {})[0, :16].tolist() == [
+        1 if j == (10 ** 400 + 3) % 16 else 0 for j in range(16)]
+    shift = parse_spec(base % ("shift", "left", 10 ** 30), "r.toml")
+    assert shift.evaluate(states, {})[0].tolist() == [0] * 32
+
+
+def test_toml_lfsr_steps_by_squaring():
+    # Reference: the step as the spec format defines it, on a Python int (shift one bit
+    # towards the top, bit 0 fed with the XOR of the tap bits taken before the shift).
+    many = parse_spec('[state]\nwidths = [8]\n[[step]]\nop = "lfsr"\nwords = ["w0"]\n'
+                      'taps = [7, 5, 4, 3]\nsteps = 1000\n', "r.toml")
+    s = 0b01001101
+    state = np.array([[(s >> j) & 1 for j in range(8)]], dtype=np.uint8)
+    for _ in range(1000):
+        feedback = 0
+        for t in (7, 5, 4, 3):
+            feedback ^= (s >> t) & 1
+        s = ((s << 1) | feedback) & 0xFF
+    assert many.evaluate(state, {}).tolist() == [[(s >> j) & 1 for j in range(8)]]
