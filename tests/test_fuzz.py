@@ -143,7 +143,8 @@ SPECIALS = [
     "[", "]", "[[", "=", ":", "true", "false", "null", HUGE, "-" + HUGE, "9" * 5000,
     "f" * 5000, "0x" + "f" * 300, "2^65536", "^65536", "2^64", "2^63", "2^61-1",
     "(2^65536)^65536", "10**400", "(" * 3000, ")" * 50, "-" * 3000, "2^" * 2000 + "2",
-    "[" * 3000, "{\"a\":" * 3000, "GF(", "Z/", "GF(2^8)",
+    "[" * 3000, "{\"a\":" * 3000, "GF(", "Z/", "GF(2^8)", " " * 3000, "\t" * 1000,
+    "[" + " " * 2000, "0.." + "9" * 30,
 ]
 special = st.one_of(st.sampled_from(SPECIALS), st.text(max_size=6))
 special_bytes = st.one_of(
@@ -726,13 +727,24 @@ def toml_specs(draw):
     if draw(st.booleans()):
         kind = draw(st.sampled_from(["bits", "values", "lfsr"]))
         lines += ["[constants.z0]", f"{kind} = {draw(toml_values)}"]
-    keys = sorted({k for req, opt in
-                   __import__("gfla.jobs.keysched.spec", fromlist=["_STEP_KEYS"])
-                   ._STEP_KEYS.values() for k in req | opt})
+    from gfla.jobs.keysched.spec import _STEP_KEYS
+    every_key = sorted({k for req, opt in _STEP_KEYS.values() for k in req | opt})
+    word_values = st.one_of(st.sampled_from(['"k0"', '"k1"', '"k3"', '"t"', '["k0"]',
+                                             '["k0", "k1"]', '["k1", "k2", "k3", "k0"]']),
+                            toml_values)
     for _ in range(draw(st.integers(0, 4))):
-        lines += ["[[step]]", f'op = "{draw(st.sampled_from(STEP_OPS))}"']
-        for key in draw(st.lists(st.sampled_from(keys), max_size=4, unique=True)):
-            lines.append(f'{key if key != "from" else "from"} = {draw(toml_values)}')
+        op = draw(st.sampled_from(STEP_OPS))
+        lines += ["[[step]]", f'op = "{op}"']
+        required, optional = _STEP_KEYS[op]
+        keys = sorted(required) + draw(st.lists(st.sampled_from(sorted(optional) or ["op"]),
+                                                max_size=2, unique=True))
+        if draw(st.integers(0, 3)) == 0:
+            keys.append(draw(st.sampled_from(every_key)))
+        for key in dict.fromkeys(keys):
+            if key == "op":
+                continue
+            strategy = word_values if key in ("word", "into", "words") else toml_values
+            lines.append(f"{key} = {draw(strategy)}")
     return "\n".join(lines) + "\n"
 
 
@@ -872,7 +884,7 @@ def known_bits_texts(draw):
 
 def _check_round(r):
     if r > 1000:
-        raise InputError(f"round {r} is beyond the schedule's 1000 rounds")
+        raise InputError("round is beyond the schedule's 1000 rounds")
     return r
 
 
