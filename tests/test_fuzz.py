@@ -1242,3 +1242,17 @@ def test_toml_lfsr_steps_by_squaring():
             feedback ^= (s >> t) & 1
         s = ((s << 1) | feedback) & 0xFF
     assert many.evaluate(state, {}).tolist() == [[(s >> j) & 1 for j in range(8)]]
+
+
+@pytest.mark.parametrize("path", ["a\x00b", "\ud800x", "a\x00b.npy", "\ud800.npy"])
+def test_unusable_file_names_refused(path):
+    # open() raises ValueError for a NUL byte and UnicodeEncodeError for a lone
+    # surrogate (Python documentation, os and io); both were leaking.
+    for call in (lambda: load_matrix_file(path), lambda: load_vector_file(path),
+                 lambda: load_spec(path), lambda: load_known_bits(path, 8),
+                 lambda: load_manifest(path)):
+        with pytest.raises(InputError):
+            call()
+    from gfla.io.matrix_text import npy_header
+    with pytest.raises(InputError):
+        npy_header(path)

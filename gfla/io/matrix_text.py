@@ -228,12 +228,16 @@ def npy_header(path, what="array", objects_note="only integer arrays are read"):
                                  f"{_first_line(exc)})") from None
             offset = fh.tell()
             size = os.fstat(fh.fileno()).st_size
+    except InputError:
+        raise
     except FileNotFoundError:
         raise InputError(f"{path}: no such file") from None
     except IsADirectoryError:
         raise InputError(f"{path}: is a directory, not a file") from None
     except OSError as exc:
         raise InputError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    except ValueError:  # a NUL byte, or a name the file system cannot encode
+        raise InputError(f"{ascii(path)}: not a usable file name") from None
     if dtype.hasobject:
         raise InputError(f"{path}: holds Python objects (object dtype); {objects_note}")
     if dtype.kind not in "iub" or dtype.fields is not None or dtype.subdtype is not None:
@@ -296,6 +300,8 @@ def _read_text(path):
         raise InputError(f"{path}: permission denied") from None
     except OSError as exc:
         raise InputError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    except ValueError:  # a NUL byte, or a name the file system cannot encode
+        raise InputError(f"{ascii(path)}: not a usable file name") from None
     if data.startswith(_NPY_MAGIC):
         return None
     try:

@@ -153,6 +153,8 @@ def load_known_bits(path, key_bits, check_round=None):
         raise InputError(f"{path}: is a directory, not a file") from None
     except OSError as exc:
         raise InputError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    except ValueError:  # a NUL byte, or a name the file system cannot encode
+        raise InputError(f"{ascii(path)}: not a usable file name") from None
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError:

@@ -341,6 +341,8 @@ def load_spec(path):
         raise SpecError("is a directory, not a spec file", path) from None
     except OSError as exc:
         raise SpecError(f"cannot be read ({exc.strerror or exc})", path) from None
+    except ValueError:  # a NUL byte, or a name the file system cannot encode
+        raise SpecError("not a usable file name", ascii(path)) from None
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError:
