@@ -1256,3 +1256,19 @@ def test_unusable_file_names_refused(path):
     from gfla.io.matrix_text import npy_header
     with pytest.raises(InputError):
         npy_header(path)
+
+
+@pytest.mark.parametrize("matrix,match", [
+    ([["f" * 5000]], "5000 characters is too long"),     # process_lines raised ValueError
+    ([["f" * 5000, 1], [1, 1]], "too long"),
+    ([[10 ** 4000]], "far outside"),                      # an error line of 4000 digits
+])
+@pytest.mark.parametrize("op", ["det", "inv", "mul", "solve"])
+def test_jsonl_huge_entries(matrix, match, op):
+    from gfla.jobs.batch.records import process_lines
+    line = json.dumps({"id": 1, "field": "GF(7)", "op": op, "matrix": matrix,
+                       "rhs": [1] * len(matrix), "right": matrix})
+    result = process_lines(line.encode() + b"\n", 1)
+    error = json.loads(result.data)["error"]
+    assert error["kind"] == "InputError" and re.search(match, error["message"]), error
+    assert len(result.data) < 500

@@ -33,6 +33,8 @@ __all__ = ["ChunkResult", "process_lines", "matrix_rows", "vector_entries", "err
            "field_of", "limit_threads"]
 
 _HEX = re.compile(r"(?:0[xX])?[0-9a-fA-F]+\Z")
+_MAX_HEX_TEXT = 200
+_MAX_ENTRY_BITS = 1024
 _quote = json.encoder.encode_basestring_ascii
 # Results whose JSON is what Python prints for them (ints and lists of ints).
 _PRINTED_AS_JSON = frozenset(("inv", "det", "rank", "nullspace", "order", "power", "mul"))
@@ -97,9 +99,16 @@ def limit_threads(threads):
 
 def _entry(x, name, where):
     if type(x) is int:
+        if x.bit_length() > _MAX_ENTRY_BITS:
+            raise InputError(f"{name}{where}: an integer of {x.bit_length()} bits is far "
+                             "outside any field or ring")
         return x
     if isinstance(x, str):
         s = x.strip()
+        if len(s) > _MAX_HEX_TEXT:
+            # Far above any element (2^64 has 16 hex digits); a huge number would also
+            # be too long to print in the range message.
+            raise InputError(f"{name}{where}: an entry of {len(s)} characters is too long")
         if _HEX.match(s):
             return int(s, 16)
         raise InputError(f"{name}{where}: {x[:24]!r} is not a hexadecimal number")
