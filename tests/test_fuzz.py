@@ -547,7 +547,11 @@ json_leaves = st.one_of(
     st.none(), st.booleans(), st.integers(-2 ** 70, 2 ** 70), st.floats(),
     st.text(max_size=8), st.sampled_from(["GF(2^8)", "GF(7)", "Z/12", "inv", "det", "solve",
                                           "power", "uint8", "int64", "0x11b", "2^100",
-                                          "-1", "../b.npy", "/etc/hostname", "b.npy", ""]),
+                                          "-1", "../b.npy", "/etc/hostname", "b.npy", "",
+                                          "f" * 5000, "0x" + "f" * 300, "٣", "\x00",
+                                          "\ud800", " " * 3000, "2^65536", "1e400"]),
+    st.sampled_from([10 ** 400, -10 ** 400, 10 ** 4000, 2 ** 64, 2 ** 63, -2 ** 63 - 1,
+                     float("nan"), float("inf"), -0.0, 1e308]),
 )
 json_values = st.recursive(json_leaves, lambda c: st.one_of(
     st.lists(c, max_size=3), st.dictionaries(st.text(max_size=5), c, max_size=3)),
@@ -916,7 +920,6 @@ test_fuzz_known_bits_file, test_fuzz_known_bits_file_slow = _known_bits_file
                 st.one_of(mutated(matrix_texts()), st.sampled_from(["", "1", "-1 2; 3 4"])),
                 cli_modulus_text, st.booleans(), st.booleans()), ci=100, slow=3000)
 def _cli(args):
-    from gfla.cli.main import cli
     command, spec, matrix, modulus, hex_text, as_json = args
     argv = [command, "--field", spec]
     if modulus is not None:
@@ -926,18 +929,28 @@ def _cli(args):
     if as_json:
         argv.append("--json")
     argv += ["--", matrix]
-    fig = _figure(f"cli gfla {{det,rank,inv}}")
+    _run_cli("cli gfla det/rank/inv MATRIX", argv)
+
+
+def _run_cli(label, argv, stdin=None):
+    """Run the command line in-process; exit code 0, 1 or 2 and no traceback."""
+    from gfla.cli.main import cli
+    fig = _figure(label)
     fig["tried"] += 1
     start = time.perf_counter()
-    result = CliRunner().invoke(cli, argv)
+    result = CliRunner().invoke(cli, argv, input=stdin)
     elapsed = time.perf_counter() - start
     fig["longest"] = max(fig["longest"], elapsed)
     fig["over"] += elapsed > OVER_SECONDS
     bad = (result.exit_code not in (0, 1, 2) or "Traceback" in result.output
-           or "internal error" in result.output)
+           or "internal error" in result.output
+           or not (result.exception is None or isinstance(result.exception, SystemExit)))
     if bad:
         fig["leaks"] += 1
     assert not bad, (argv, result.exit_code, result.output[-2000:], result.exception)
+    if result.exit_code == 2:
+        errors = [ln for ln in result.output.splitlines() if ln.startswith("error:")]
+        assert len(errors) == 1, result.output[-2000:]
 
 
 test_fuzz_cli, test_fuzz_cli_slow = _cli
@@ -1272,3 +1285,37 @@ def test_jsonl_huge_entries(matrix, match, op):
     error = json.loads(result.data)["error"]
     assert error["kind"] == "InputError" and re.search(match, error["message"]), error
     assert len(result.data) < 500
+
+
+@fuzz(st.tuples(
+    st.sampled_from(["det", "rank", "inv", "charpoly", "nullspace", "power", "solve"]),
+    st.sampled_from(["GF(7)", "GF(2)", "GF(2^8)", "Z/12", "Z/2^64", "GF(2^61-1)"]),
+    st.one_of(npy_inputs.map(lambda b: ("m.npy", b)),
+              mutated(matrix_texts()).map(lambda t: ("m.txt", encode(t))),
+              mutated_bytes(mutated(matrix_texts()).map(encode)).map(lambda b: ("m", b))),
+    mutated(int_expressions), mutated(matrix_texts()), st.booleans()), ci=60, slow=3000)
+def _cli_files(args):
+    command, spec, (name, data), exponent, rhs, from_stdin = args
+    path = os.path.join(_workdir(), name)
+    with open(path, "wb") as fh:
+        fh.write(data)
+    argv = [command, "--field", spec, "-i", "-" if from_stdin else path]
+    if command == "power":
+        argv += ["-e", exponent]
+    if command == "solve":
+        argv += ["--rhs", rhs]
+    _run_cli("cli gfla OP -i FILE / stdin", argv, stdin=data if from_stdin else None)
+
+
+test_fuzz_cli_files, test_fuzz_cli_files_slow = _cli_files
+
+
+def test_cli_stdin_not_utf8():
+    # Non-UTF-8 bytes on stdin: exit code 2 and one line (was exit code 3,
+    # UnicodeDecodeError).
+    from gfla.cli.main import cli
+    for command in ("det", "inv", "rank"):
+        result = CliRunner().invoke(cli, [command, "--field", "GF(7)", "-i", "-"],
+                                    input=b"\x80\x04 1 2; 3 4")
+        assert result.exit_code == 2, result.output
+        assert result.output.strip() == "error: stdin: not UTF-8 text", result.output
