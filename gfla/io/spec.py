@@ -18,6 +18,7 @@ _MAX_EXPONENT = 1 << 16
 _MAX_DEPTH = 100
 _MAX_BITS = 1 << 17
 _MAX_DECIMAL_DIGITS = 4000   # Python refuses to convert more than 4300 digits from text
+_MAX_LENGTH = 10000
 
 
 def _show_text(text):
@@ -36,8 +37,9 @@ def _show_int(value):
 def parse_int_expr(text, what="number"):
     """Evaluate a non-negative integer expression of +, -, *, ^ (or **) and parentheses.
 
-    Numbers are ASCII decimal digits or ``0x`` hex. Nesting deeper than 100 levels,
-    exponents above 2^16 and values of more than 2^17 bits are refused.
+    Numbers are ASCII decimal digits or ``0x`` hex. Texts of more than 10000
+    characters, nesting deeper than 100 levels, exponents above 2^16 and values of
+    more than 2^17 bits are refused.
 
     Raises
     ------
@@ -52,6 +54,11 @@ def parse_int_expr(text, what="number"):
     s = text.strip()
     if not s:
         raise InputError(f"{what} is empty")
+    if len(s) > _MAX_LENGTH:
+        # Evaluation is linear in the length, but a long sum of 2^65536 terms costs
+        # about 0.15 ms a term: bound it.
+        raise InputError(f"{what} {_show_text(text)}: {len(s)} characters is too long "
+                         f"(at most {_MAX_LENGTH})")
     tokens = []
     pos = 0
     while pos < len(s):
