@@ -213,7 +213,12 @@ def load_field(spec, modulus_text=None):
 
 
 def _read_stdin():
-    return sys.stdin.read()
+    from gfla.errors import InputError
+
+    try:
+        return sys.stdin.read()
+    except UnicodeDecodeError:
+        raise InputError("not UTF-8 text") from None
 
 
 def read_matrix(text, path, hex_text, what="matrix"):

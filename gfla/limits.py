@@ -50,9 +50,9 @@ import time
 
 from .errors import InputError
 
-__all__ = ["ENV_VARIABLE", "ALWAYS_FITS", "available_memory", "parse_size", "format_bytes", "Workspace",
-           "fits", "check_memory", "check_matrices", "check_text_output", "check_npy_header",
-           "read_npy_header"]
+__all__ = ["ENV_VARIABLE", "ALWAYS_FITS", "available_memory", "parse_size", "format_bytes",
+           "Workspace", "fits", "check_memory", "check_matrices", "check_text_output",
+           "check_npy_header", "read_npy_header", "short_text", "first_line"]
 
 ENV_VARIABLE = "GFLA_MEMORY_LIMIT"
 
@@ -197,6 +197,8 @@ def format_bytes(n):
     n = int(n)
     if n < 1000:
         return f"{n} byte" + ("" if n == 1 else "s")
+    if n >= 10 ** 21:  # past EB, and possibly past what a float holds
+        return f"about 10^{int((n.bit_length() - 1) * 0.30103)} bytes"
     for unit, scale in (("kB", 10**3), ("MB", 10**6), ("GB", 10**9), ("TB", 10**12),
                         ("PB", 10**15), ("EB", 10**18)):
         text = f"{n / scale:.3g}"
@@ -351,33 +353,63 @@ def check_text_output(what, entries, digits):
 _NPY_MAGIC = b"\x93NUMPY"
 
 
-def read_npy_header(path):
+def short_text(text, limit=60):
+    """``text`` cut to ``limit`` characters (with "...") for a one-line message."""
+    return text if len(text) <= limit else text[:limit - 3] + "..."
+
+
+def first_line(exc):
+    """The first line of an exception's message, short, or its class name."""
+    text = str(exc).strip().splitlines()
+    return short_text(text[0], 100) if text else type(exc).__name__
+
+
+def read_npy_header(path, what="array", objects_note="only integer arrays are read"):
     """``(shape, dtype, fortran_order, data_offset)`` of a ``.npy`` file, read from its
     header alone (nothing of the data is read or allocated).
+
+    The header (NumPy's format: magic, version 1.0 or 2.0, a header length, a Python
+    dict literal giving ``descr``, ``fortran_order`` and ``shape``) is parsed by numpy's
+    own reader; whatever that reader raises on a malformed header becomes an
+    ``InputError``. Object dtypes (stored as pickles) are refused here, before any
+    data is read, so nothing in the file is ever unpickled.
 
     Raises
     ------
     InputError
-        When the file cannot be opened or its header is not a valid ``.npy`` header.
+        Missing or unreadable file, a pickle or a zip archive, a malformed header, an
+        unsupported version, an object or non-integer dtype, a negative dimension.
     """
     import numpy as np
     from numpy.lib import format as npy_format
 
     try:
         with open(path, "rb") as fh:
+            start = fh.read(6)
+            fh.seek(0)
+            if start[:1] == b"\x80":
+                raise InputError(f"{path}: is a Python pickle, not a .npy file; pickles are "
+                                 "never loaded")
+            if start[:4] == b"PK\x03\x04":
+                raise InputError(f"{path}: is a zip archive (.npz, several arrays), not one "
+                                 f".npy {what}")
             try:
                 version = npy_format.read_magic(fh)
                 if version == (1, 0):
                     shape, fortran, dtype = npy_format.read_array_header_1_0(fh)
-                elif version in ((2, 0), (3, 0)):
+                elif version == (2, 0):
                     shape, fortran, dtype = npy_format.read_array_header_2_0(fh)
                 else:
-                    raise ValueError(f"unsupported .npy version {version}")
-            except (ValueError, EOFError, SyntaxError, TypeError) as exc:
-                lines = str(exc).strip().splitlines()
-                raise InputError(f"{path}: not a readable .npy file "
-                                 f"({lines[0] if lines else type(exc).__name__})") from None
+                    raise InputError(f"{path}: .npy format version {version[0]}.{version[1]} "
+                                     "is not read here (1.0 and 2.0 are)")
+            except InputError:
+                raise
+            except Exception as exc:  # numpy's header reader raises many kinds on junk
+                raise InputError(f"{path}: not a readable .npy file (bad header: "
+                                 f"{first_line(exc)})") from None
             offset = fh.tell()
+    except InputError:
+        raise
     except FileNotFoundError:
         raise InputError(f"{path}: no such file") from None
     except IsADirectoryError:
@@ -386,17 +418,27 @@ def read_npy_header(path):
         raise InputError(f"{path}: permission denied") from None
     except OSError as exc:
         raise InputError(f"{path}: cannot be read ({exc.strerror or exc})") from None
-    return tuple(int(s) for s in shape), np.dtype(dtype), bool(fortran), offset
+    except ValueError:  # a NUL byte, or a name the file system cannot encode
+        raise InputError(f"{ascii(path)}: not a usable file name") from None
+    dtype = np.dtype(dtype)
+    if dtype.hasobject:
+        raise InputError(f"{path}: holds Python objects (object dtype); {objects_note}")
+    if dtype.kind not in "iub" or dtype.fields is not None or dtype.subdtype is not None:
+        raise InputError(f"{path}: has dtype {short_text(str(dtype))}; an integer dtype is needed")
+    if any(d < 0 for d in shape):
+        raise InputError(f"{path}: header declares a negative dimension "
+                         f"(shape {short_text(str(shape))})")
+    return tuple(int(s) for s in shape), dtype, bool(fortran), offset
 
 
-def check_npy_header(path, what="the array", copies=1):
-    """Check a ``.npy`` file's declared size before it is loaded.
+def check_npy_header(path, what="the array", copies=1,
+                     objects_note="only integer arrays are read"):
+    """Check a ``.npy`` file's header and declared size before it is loaded.
 
-    The shape and dtype come from the header; an object (pickle) dtype is refused
-    without reading further, so nothing in the file is ever unpickled. The array must
-    fit in the available memory ``copies`` times (``copies=0`` skips the memory check,
-    for memory-mapped reading), and the file must be long enough to hold the data the
-    header declares.
+    :func:`read_npy_header` first (a malformed header or an object dtype is refused
+    unread); then the array must fit in the available memory ``copies`` times
+    (``copies=0`` skips the memory check, for memory-mapped reading), and the file must
+    be long enough to hold the data the header declares.
 
     Returns
     -------
@@ -406,13 +448,10 @@ def check_npy_header(path, what="the array", copies=1):
     Raises
     ------
     InputError
-        Object dtype, a file shorter than its header declares, or a declared size that
-        does not fit (the message carries the estimate).
+        As :func:`read_npy_header`; a declared size that does not fit (the message
+        carries the estimate); a file shorter than its header declares.
     """
-    shape, dtype, _, offset = read_npy_header(path)
-    if dtype.hasobject:
-        raise InputError(f"{path}: holds Python objects (object dtype); only integer "
-                         "arrays are read")
+    shape, dtype, _, offset = read_npy_header(path, what.removeprefix("the "), objects_note)
     declared = math.prod(shape) * dtype.itemsize
     if copies:
         check_memory(declared * copies,
@@ -426,6 +465,7 @@ def check_npy_header(path, what="the array", copies=1):
         size = None
     if size is not None and size - offset < declared:
         raise InputError(f"{path}: truncated .npy file: the header declares shape "
-                         f"{tuple(shape)} of {dtype} ({format_bytes(declared)}), the file "
-                         f"holds {format_bytes(max(0, size - offset))} of data")
+                         f"{short_text(str(tuple(shape)))} of {dtype} "
+                         f"({format_bytes(declared)}), the file holds "
+                         f"{format_bytes(max(0, size - offset))} of data")
     return shape, dtype

@@ -421,7 +421,9 @@ def test_bulk_stack_header_longer_than_the_file(tmp_path):
     write_header_only(path, (10 ** 6, 1000, 1000))
     (tmp_path / "stack.json").write_text(json.dumps({"field": "GF(7)", "op": "det"}))
     message = refused(open_bulk, path)
-    assert str(path) in message and "not a readable .npy file" in message
+    # 10^6 * 1000 * 1000 entries * 8 bytes = 8 * 10^12 bytes declared, none present
+    assert str(path) in message and "truncated .npy file" in message
+    assert "(8 TB)" in message and "holds 0 bytes" in message
 
 
 # --------------------------------------------------------------------------- erasure

@@ -18,6 +18,7 @@ import os
 import re
 
 from ..errors import InputError
+from ..limits import first_line
 
 __all__ = ["parse_matrix", "parse_vector", "load_matrix_file", "load_vector_file"]
 
@@ -180,14 +181,15 @@ def parse_vector(text, hex=False):
     )
 
 
+
 def _read_npy(path, what):
     import numpy as np
 
     from ..limits import check_npy_header
 
-    # The header alone first: an object dtype is refused unread, and a declared shape
-    # that would not fit in memory (or that the file is too short to hold) is refused
-    # with its size before numpy allocates it.
+    # The header alone first: a malformed one or an object dtype is refused unread, and
+    # a declared shape that would not fit in memory (or that the file is too short to
+    # hold) is refused with its size before numpy allocates it.
     check_npy_header(path, f"the {what}")
     try:
         array = np.load(path, allow_pickle=False)
@@ -196,9 +198,9 @@ def _read_npy(path, what):
             raise InputError(
                 f"{path}: holds Python objects (object dtype); only integer arrays are read"
             ) from None
-        raise InputError(f"{path}: not a readable .npy file ({_first_line(exc)})") from None
+        raise InputError(f"{path}: not a readable .npy file ({first_line(exc)})") from None
     except (OSError, EOFError) as exc:
-        raise InputError(f"{path}: not a readable .npy file ({_first_line(exc)})") from None
+        raise InputError(f"{path}: not a readable .npy file ({first_line(exc)})") from None
     if not isinstance(array, np.ndarray):
         raise InputError(f"{path}: holds an archive of several arrays, not one {what}")
     if array.dtype.kind == "O":
@@ -207,10 +209,6 @@ def _read_npy(path, what):
         raise InputError(f"{path}: has dtype {array.dtype}; an integer dtype is needed")
     return array
 
-
-def _first_line(exc):
-    text = str(exc).strip().splitlines()
-    return text[0] if text else type(exc).__name__
 
 
 def _read_text(path):
@@ -225,6 +223,8 @@ def _read_text(path):
         raise InputError(f"{path}: permission denied") from None
     except OSError as exc:
         raise InputError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    except ValueError:  # a NUL byte, or a name the file system cannot encode
+        raise InputError(f"{ascii(path)}: not a usable file name") from None
     if data.startswith(_NPY_MAGIC):
         return None
     try:

@@ -17,7 +17,7 @@ import os
 import numpy as np
 
 from ...errors import InconsistentSystemError, InputError
-from ...limits import Workspace
+from ...limits import Workspace, check_npy_header, first_line, short_text
 from .ops import BULK_OPERATIONS, OPERATIONS
 from .records import error_object, field_of, limit_threads
 
@@ -39,14 +39,12 @@ def _load(path, what):
         raise InputError(f"{path}: no such file")
     if os.path.isdir(path):
         raise InputError(f"{path}: is a directory, not a file")
-    # The header first: an object array is refused without reading (so nothing is
-    # unpickled), and a file shorter than its header declares is named as such.
-    from ...limits import read_npy_header
-    _, dtype, _, _ = read_npy_header(path)
-    if dtype.hasobject:
-        raise InputError(
-            f"{path}: holds Python objects (for example matrices of different sizes); "
-            f"{what} must be one integer array")
+    # The header first: a malformed one, an object dtype (a pickle) or a shape larger
+    # than the file is refused before numpy maps anything (memory-mapped: the memory
+    # check is the workspace's, in open_bulk).
+    check_npy_header(path, what, copies=0,
+                     objects_note="for example matrices of different sizes; "
+                     f"{what} must be one integer array")
     try:
         arr = np.load(path, mmap_mode="r", allow_pickle=False)
     except ValueError as exc:
@@ -54,19 +52,14 @@ def _load(path, what):
             raise InputError(
                 f"{path}: holds Python objects (for example matrices of different sizes); "
                 f"{what} must be one integer array") from None
-        raise InputError(f"{path}: not a readable .npy file ({_first_line(exc)})") from None
+        raise InputError(f"{path}: not a readable .npy file ({first_line(exc)})") from None
     except (OSError, EOFError) as exc:
-        raise InputError(f"{path}: not a readable .npy file ({_first_line(exc)})") from None
+        raise InputError(f"{path}: not a readable .npy file ({first_line(exc)})") from None
     if not isinstance(arr, np.ndarray):
         raise InputError(f"{path}: holds several arrays; {what} must be one array")
     if arr.dtype.kind not in "iub":
         raise InputError(f"{path}: has dtype {arr.dtype}; {what} needs an integer dtype")
     return arr
-
-
-def _first_line(exc):
-    lines = str(exc).strip().splitlines()
-    return lines[0] if lines else type(exc).__name__
 
 
 class _Rows:
@@ -166,8 +159,11 @@ def open_bulk(path, chunk_size=None, workers=1, remote_workers=False):
     try:
         with open(side_path, "rb") as fh:
             sidecar = json.loads(fh.read())
+    except RecursionError:
+        raise InputError(f"{side_path}: not a readable JSON file (nested too deeply)") from None
     except (OSError, ValueError) as exc:
-        raise InputError(f"{side_path}: not a readable JSON file ({_first_line(exc)})") from None
+        raise InputError(f"{side_path}: not a readable JSON file "
+                         f"({short_text(first_line(exc))})") from None
     if not isinstance(sidecar, dict):
         raise InputError(f"{side_path}: must hold one JSON object")
     mismatch = f"sidecar {side_path} does not match {path}"
@@ -175,6 +171,9 @@ def open_bulk(path, chunk_size=None, workers=1, remote_workers=False):
         if key not in sidecar:
             raise InputError(f"{side_path}: names no {key!r}")
     opname = sidecar["op"]
+    if not isinstance(opname, str):
+        raise InputError(f"{side_path}: op must be text such as 'inv', got "
+                         f"{short_text(repr(opname))}")
     if opname not in OPERATIONS:
         raise InputError(f"{side_path}: unknown op {opname!r} (known: "
                          f"{', '.join(sorted(OPERATIONS))})")
@@ -191,15 +190,17 @@ def open_bulk(path, chunk_size=None, workers=1, remote_workers=False):
         raise InputError(f"{path}: has shape {tuple(stack.shape)}; a stack of matrices "
                          "(N, m, n) is needed")
     N, m, n = (int(x) for x in stack.shape)
-    if "count" in sidecar and sidecar["count"] != N:
-        raise InputError(f"{mismatch}: count {sidecar['count']!r} in the sidecar, {N} "
-                         "matrices in the array")
-    if "shape" in sidecar and list(sidecar["shape"] or []) != [m, n]:
-        raise InputError(f"{mismatch}: shape {sidecar['shape']!r} in the sidecar, "
+    if "count" in sidecar and (type(sidecar["count"]) is not int or sidecar["count"] != N):
+        raise InputError(f"{mismatch}: count {short_text(repr(sidecar['count']))} in the "
+                         f"sidecar, {N} matrices in the array")
+    shape = sidecar.get("shape")
+    if "shape" in sidecar and (type(shape) is not list
+                               or [type(x) for x in shape] != [int, int] or shape != [m, n]):
+        raise InputError(f"{mismatch}: shape {short_text(repr(shape))} in the sidecar, "
                          f"matrices of {m} x {n} in the array")
-    if "dtype" in sidecar and str(sidecar["dtype"]) != str(stack.dtype):
-        raise InputError(f"{mismatch}: dtype {sidecar['dtype']!r} in the sidecar, "
-                         f"{stack.dtype} in the array")
+    if "dtype" in sidecar and sidecar["dtype"] != str(stack.dtype):
+        raise InputError(f"{mismatch}: dtype {short_text(repr(sidecar['dtype']))} in the "
+                         f"sidecar, {stack.dtype} in the array")
     if m == 0 or n == 0:
         raise InputError(f"{path}: holds empty matrices (shape {tuple(stack.shape)})")
     if op.square and m != n:
@@ -210,8 +211,10 @@ def open_bulk(path, chunk_size=None, workers=1, remote_workers=False):
         if "rhs" not in sidecar:
             raise InputError(f"{side_path}: op 'solve' needs 'rhs', the file of "
                              "right-hand sides (N, m)")
-        rhs_path = os.path.join(os.path.dirname(os.path.abspath(side_path)),
-                                str(sidecar["rhs"]))
+        if not isinstance(sidecar["rhs"], str) or not sidecar["rhs"]:
+            raise InputError(f"{side_path}: rhs must name a .npy file, got "
+                             f"{short_text(repr(sidecar['rhs']))}")
+        rhs_path = os.path.join(os.path.dirname(os.path.abspath(side_path)), sidecar["rhs"])
         rhs = _load(rhs_path, "the right-hand sides")
         if rhs.shape != (N, m):
             raise InputError(f"{rhs_path}: has shape {tuple(rhs.shape)}; the right-hand "

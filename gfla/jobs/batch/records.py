@@ -33,6 +33,8 @@ __all__ = ["ChunkResult", "process_lines", "scan_ids", "id_hashes", "matrix_rows
            "field_of", "limit_threads"]
 
 _HEX = re.compile(r"(?:0[xX])?[0-9a-fA-F]+\Z")
+_MAX_HEX_TEXT = 200
+_MAX_ENTRY_BITS = 1024
 _quote = json.encoder.encode_basestring_ascii
 # Results whose JSON is what Python prints for them (ints and lists of ints).
 _PRINTED_AS_JSON = frozenset(("inv", "det", "rank", "nullspace", "order", "power", "mul"))
@@ -123,9 +125,16 @@ def limit_threads(threads):
 
 def _entry(x, name, where):
     if type(x) is int:
+        if x.bit_length() > _MAX_ENTRY_BITS:
+            raise InputError(f"{name}{where}: an integer of {x.bit_length()} bits is far "
+                             "outside any field or ring")
         return x
     if isinstance(x, str):
         s = x.strip()
+        if len(s) > _MAX_HEX_TEXT:
+            # Far above any element (2^64 has 16 hex digits); a huge number would also
+            # be too long to print in the range message.
+            raise InputError(f"{name}{where}: an entry of {len(s)} characters is too long")
         if _HEX.match(s):
             return int(s, 16)
         raise InputError(f"{name}{where}: {x[:24]!r} is not a hexadecimal number")
@@ -243,15 +252,20 @@ def _parse(text, line_no):
     """The record object of a line (str, stripped); raises InputError."""
     try:
         obj, end = _scan_once(text, 0)
-    except (StopIteration, ValueError):
+    except (StopIteration, ValueError, RecursionError):
         end = -1
     if end != len(text):
         try:
             json.loads(text)
-        except ValueError as exc:
-            msg = getattr(exc, "msg", str(exc)).lower()
-            where = f" (column {exc.colno})" if hasattr(exc, "colno") else ""
-            raise InputError(f"line {line_no} is not valid JSON: {msg}{where}") from None
+        except RecursionError:
+            raise InputError(f"line {line_no} is not valid JSON: nested too deeply") from None
+        except json.JSONDecodeError as exc:
+            raise InputError(f"line {line_no} is not valid JSON: {exc.msg.lower()} "
+                             f"(column {exc.colno})") from None
+        except ValueError:
+            # Python refuses to read integers of more than 4300 digits from text.
+            raise InputError(f"line {line_no} is not valid JSON for gfla: it holds an "
+                             "integer of more than 4300 digits") from None
         raise InputError(f"line {line_no} is not valid JSON")  # pragma: no cover
     if type(obj) is not dict:
         raise InputError(f"line {line_no} is not a JSON object")
@@ -361,7 +375,7 @@ def _process_lines(data, first_line):
         slots.append(None)
         try:
             obj, end = scan(text, 0)
-        except (StopIteration, ValueError, TypeError):
+        except (StopIteration, ValueError, TypeError, RecursionError):
             obj = end = None
         if end != len(text) or type(obj) is not dict:
             _reject(out, slot, text, first_line + offset, None)

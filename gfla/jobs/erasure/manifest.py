@@ -38,7 +38,7 @@ from ...errors import InputError
 
 __all__ = ["MANIFEST_NAME", "FORMAT", "FORMAT_VERSION", "Manifest", "ShardEntry",
            "shard_file_name", "shard_size_for", "build_manifest", "manifest_text",
-           "load_manifest", "canonical_digest", "check_shard_name"]
+           "load_manifest", "parse_manifest", "canonical_digest", "check_shard_name"]
 
 MANIFEST_NAME = "manifest.json"
 FORMAT = "gfla-erasure-set"
@@ -48,6 +48,10 @@ LAYOUT = "contiguous"
 MAX_MANIFEST_BYTES = 64 << 20
 
 _HEX64 = re.compile(r"[0-9a-f]{64}")
+# File names are at most 255 bytes on common POSIX file systems (NAME_MAX); a shard's
+# temporary name (.NAME.gfla-partial-XXXXXXXX) and set-aside name (NAME.damaged.N)
+# must fit too, so shard names are kept well below.
+_MAX_NAME_BYTES = 200
 
 
 @dataclass(frozen=True)
@@ -118,11 +122,22 @@ def check_shard_name(name, where):
     """Refuse a shard file name that could point outside the manifest's directory."""
     if not isinstance(name, str) or not name:
         raise InputError(f"{where}: file name must be a non-empty string")
+    shown = repr(name) if len(name) <= 40 else repr(name[:36] + "...")
     if ("/" in name or "\\" in name or "\0" in name or name in (".", "..")
             or name.startswith(".") or os.path.isabs(name)
             or os.path.basename(name) != name or name == MANIFEST_NAME):
-        raise InputError(f"{where}: file name {name!r} is not a plain name inside the "
+        raise InputError(f"{where}: file name {shown} is not a plain name inside the "
                          f"shard directory; refused")
+    if any(ord(c) < 32 or ord(c) == 127 for c in name):
+        raise InputError(f"{where}: file name {shown} holds control characters; refused")
+    try:
+        encoded = os.fsencode(name)
+    except UnicodeEncodeError:
+        raise InputError(f"{where}: file name {shown} cannot be written in the file "
+                         f"system's encoding; refused") from None
+    if len(encoded) > _MAX_NAME_BYTES:
+        raise InputError(f"{where}: file name of {len(encoded)} bytes is longer than the "
+                         f"{_MAX_NAME_BYTES} a file name may have; refused")
     return name
 
 
@@ -162,8 +177,6 @@ def load_manifest(directory):
         edited (self-checksum mismatch), names a code gfla cannot build or builds
         differently, or names a shard file outside the directory or a symbolic link.
     """
-    from .codes import FILE_FIELDS, erasure_code
-
     directory = os.fspath(directory)
     if not os.path.exists(directory):
         raise InputError(f"{directory}: no such directory")
@@ -182,6 +195,35 @@ def load_manifest(directory):
         raise InputError(f"{where}: {st.st_size} bytes is far too large for a manifest")
     with open(path, "rb") as fh:
         raw = fh.read(st.st_size + 1)  # read(n) reserves n bytes up front: keep n small
+    return parse_manifest(raw, directory, where)
+
+
+def parse_manifest(raw, directory, where=None):
+    """Validate the bytes of a manifest that lives in ``directory``.
+
+    Parameters
+    ----------
+    raw : bytes
+        The content of ``manifest.json``.
+    directory : str
+        The shard directory (shard paths are checked against it).
+    where : str, optional
+        How messages name the manifest (default ``DIR/manifest.json``).
+
+    Returns
+    -------
+    Manifest
+
+    Raises
+    ------
+    InputError
+        As :func:`load_manifest`.
+    """
+    from .codes import FILE_FIELDS, erasure_code
+
+    directory = os.fspath(directory)
+    if where is None:
+        where = os.path.join(directory, MANIFEST_NAME)
     if len(raw) > MAX_MANIFEST_BYTES:
         raise InputError(f"{where}: far too large for a manifest")
     try:
@@ -191,6 +233,12 @@ def load_manifest(directory):
     except json.JSONDecodeError as exc:
         raise InputError(f"{where}: not valid JSON ({exc.msg} at line {exc.lineno}, "
                          f"column {exc.colno})") from None
+    except RecursionError:
+        raise InputError(f"{where}: not a manifest (JSON nested too deeply)") from None
+    except ValueError:
+        # Python refuses to read integers of more than 4300 digits from text.
+        raise InputError(f"{where}: not a manifest (an integer of more than 4300 "
+                         "digits)") from None
     if not isinstance(body, dict):
         raise InputError(f"{where}: the top level must be a JSON object")
     if body.get("format") != FORMAT:

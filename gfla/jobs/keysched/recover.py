@@ -58,8 +58,15 @@ class KnownBit(tuple):
     line = property(lambda self: self[3])
 
 
-_RANGE = re.compile(r"(\d+)\.\.(\d+)\Z")
+_RANGE = re.compile(r"([0-9]+)\.\.([0-9]+)\Z")
+# A bit index has at most this many digits (far beyond any round key); longer ones are
+# refused before they are converted (Python stops at 4300 digits).
+_MAX_INDEX_DIGITS = 12
 _SEP = re.compile(r"[\s,]+")
+
+
+def _show(token):
+    return repr(token if len(token) <= 40 else token[:36] + "...")
 
 
 def _int_token(token, what, where):
@@ -85,6 +92,8 @@ def parse_known_bits(text, key_bits, path="<known bits>", check_round=None):
                              f"field{'s' if len(tokens) != 1 else ''}")
         rtok, btok, vtok = tokens
         rnd = _int_token(rtok, "round", where)
+        if rnd < 0:
+            raise InputError(f"{where}: round {_show(rtok)} is negative")
         if check_round is not None:
             try:
                 rnd = check_round(rnd)
@@ -92,13 +101,24 @@ def parse_known_bits(text, key_bits, path="<known bits>", check_round=None):
                 raise InputError(f"{where}: {exc}") from None
         m = _RANGE.match(btok)
         if m:
+            if max(len(m.group(1)), len(m.group(2))) > _MAX_INDEX_DIGITS:
+                raise InputError(f"{where}: bit range {_show(btok)} is out of range: round "
+                                 f"keys have {key_bits} bits (0 .. {key_bits - 1})")
             lo, hi = int(m.group(1)), int(m.group(2))
             if hi < lo:
                 raise InputError(f"{where}: bit range {btok} runs backwards")
+            if hi >= key_bits:
+                # Checked before the range is listed: 0..10^11 must not build a list.
+                raise InputError(f"{where}: bit {hi} is out of range: round keys have "
+                                 f"{key_bits} bits (0 .. {key_bits - 1})")
             bits_ = list(range(lo, hi + 1))
         else:
-            if not re.fullmatch(r"\d+", btok):
-                raise InputError(f"{where}: bit {btok!r} is not a bit index or an a..b range")
+            if not re.fullmatch(r"[0-9]+", btok):
+                raise InputError(f"{where}: bit {_show(btok)} is not a bit index or an a..b "
+                                 "range")
+            if len(btok) > _MAX_INDEX_DIGITS:
+                raise InputError(f"{where}: bit {_show(btok)} is out of range: round keys "
+                                 f"have {key_bits} bits (0 .. {key_bits - 1})")
             bits_ = [int(btok)]
         for b in bits_:
             if b >= key_bits:
@@ -107,12 +127,14 @@ def parse_known_bits(text, key_bits, path="<known bits>", check_round=None):
         value = _int_token(vtok, "value", where)
         if len(bits_) == 1 and not m:
             if value not in (0, 1):
-                raise InputError(f"{where}: value {vtok!r} is not 0 or 1")
+                raise InputError(f"{where}: value {_show(vtok)} is not 0 or 1")
             out.append(KnownBit(rnd, bits_[0], value, number))
         else:
+            if value < 0:
+                raise InputError(f"{where}: value {_show(vtok)} is negative")
             if value.bit_length() > len(bits_):
-                raise InputError(f"{where}: value {vtok} has more than the {len(bits_)} "
-                                 f"bits of the range {btok}")
+                raise InputError(f"{where}: value {_show(vtok)} has more than the "
+                                 f"{len(bits_)} bits of the range {btok}")
             for i, b in enumerate(bits_):
                 out.append(KnownBit(rnd, b, (value >> i) & 1, number))
     if not out:
@@ -131,6 +153,8 @@ def load_known_bits(path, key_bits, check_round=None):
         raise InputError(f"{path}: is a directory, not a file") from None
     except OSError as exc:
         raise InputError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    except ValueError:  # a NUL byte, or a name the file system cannot encode
+        raise InputError(f"{ascii(path)}: not a usable file name") from None
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError:

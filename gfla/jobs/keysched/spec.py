@@ -99,6 +99,9 @@ _TOP_KEYS = {"name", "rounds", "state", "scratch", "round_key", "constants", "st
              "description"}
 MAX_BITS = 1 << 16
 MAX_SBOX_WIDTH = 16
+# An lfsr step's word is a shift register of at most this many bits (the constant
+# sequences' LFSRs have the same bound).
+MAX_LFSR_WIDTH = 64
 
 
 @dataclasses.dataclass
@@ -217,7 +220,10 @@ class ScheduleSpec:
 
 # ---------------------------------------------------------------------- line finder
 
-_HEADER = re.compile(r"^\s*(\[\[?)\s*([^\]]+?)\s*\]\]?\s*(#.*)?$")
+# No two neighbouring parts of the header pattern can match the same characters, so a
+# long line that is not a header fails in linear time (the blanks that were matched
+# both by a \s* and by the name took seconds for a line of 2000 blanks).
+_HEADER = re.compile(r"^\s*(\[\[?)([^\]]+)\]\]?\s*(#.*)?$")
 _KEYLINE = re.compile(r"^\s*((?:[A-Za-z0-9_\-]+|\"[^\"]*\"|'[^']*')"
                       r"(?:\s*\.\s*(?:[A-Za-z0-9_\-]+|\"[^\"]*\"|'[^']*'))*)\s*=")
 
@@ -335,6 +341,8 @@ def load_spec(path):
         raise SpecError("is a directory, not a spec file", path) from None
     except OSError as exc:
         raise SpecError(f"cannot be read ({exc.strerror or exc})", path) from None
+    except ValueError:  # a NUL byte, or a name the file system cannot encode
+        raise SpecError("not a usable file name", ascii(path)) from None
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError:
@@ -347,6 +355,8 @@ def parse_spec(text, path="<spec>"):
     import tomllib
     try:
         doc = tomllib.loads(text)
+    except RecursionError:
+        raise SpecError("not valid TOML: arrays or tables nested too deeply", path) from None
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         m = re.search(r"\(at line (\d+), column (\d+)\)", msg)
@@ -354,6 +364,10 @@ def parse_spec(text, path="<spec>"):
         msg = re.sub(r"\s*\(at line \d+, column \d+\)", "", msg)
         msg = re.sub(r"\s*\(at end of document\)", " (at the end)", msg)
         raise SpecError(f"not valid TOML: {msg}", path, line) from None
+    except ValueError:
+        # tomllib converts integers with int(), which stops at 4300 digits.
+        raise SpecError("not valid TOML for a spec: an integer of more than 4300 digits",
+                        path) from None
     ctx = _Ctx(path, text)
     for key in doc:
         if key not in _TOP_KEYS:
@@ -375,6 +389,10 @@ def parse_spec(text, path="<spec>"):
     if "scratch" in doc:
         scratch = _words(ctx, "scratch", doc["scratch"], nbits, scratch=True,
                          default_prefix="t")
+        nscratch = sum(w.width for w in scratch)
+        if nscratch > MAX_BITS:
+            ctx.fail(("scratch",), f"scratch words of {nscratch} bits in all are more than "
+                     f"{MAX_BITS}")
     all_words = words + scratch
     names = {}
     for w in all_words:
@@ -402,10 +420,15 @@ def _int(ctx, key, value, lo=None, hi=None, what="an integer"):
     if isinstance(value, bool) or not isinstance(value, int):
         ctx.fail(key, f"must be {what}, got {_show(value)}")
     if lo is not None and value < lo:
-        ctx.fail(key, f"must be at least {lo}, got {value}")
+        ctx.fail(key, f"must be at least {lo}, got {_show_int(value)}")
     if hi is not None and value > hi:
-        ctx.fail(key, f"must be at most {hi}, got {value}")
+        ctx.fail(key, f"must be at most {hi}, got {_show_int(value)}")
     return value
+
+
+def _show_int(value):
+    text = str(value)
+    return text if len(text) <= 40 else f"a number of {len(text)} digits"
 
 
 def _show(value):
@@ -462,12 +485,17 @@ def _bit_list(ctx, key, items, n, what):
     out = []
     for item in items:
         if isinstance(item, str):
-            m = re.fullmatch(r"\s*(\d+)\s*\.\.\s*(\d+)\s*", item)
+            m = re.fullmatch(r"\s*([0-9]+)\s*\.\.\s*([0-9]+)\s*", item)
             if not m:
                 ctx.fail(key, f"{item!r} is not a bit index or an 'a..b' range")
+            if max(len(m.group(1)), len(m.group(2))) > 12:
+                ctx.fail(key, f"range {_show(item)} is out of range: {what} are 0 .. {n - 1}")
             a, b = int(m.group(1)), int(m.group(2))
             if b < a:
                 ctx.fail(key, f"range {item!r} runs backwards")
+            if b >= n:
+                # Checked before the range is listed: 0..10^11 must not build a list.
+                ctx.fail(key, f"bit {b} is out of range: {what} are 0 .. {n - 1}")
             out.extend(range(a, b + 1))
         else:
             out.append(_int(ctx, key, item, lo=0))
@@ -622,6 +650,9 @@ def _step(ctx, i, st, names, state_words, nbits, sequences):
                      f"has {src.width}")
         s = _amount(ctx, key, st)
         k = src.width
+        # Reduced before numpy sees it (a huge amount would overflow int64): a rotation
+        # by s is one by s mod k, a shift by k or more bits leaves zeros.
+        s = (s % k) if op == "rotate" else max(-k, min(k, s))
         j = np.arange(k)
         if op == "rotate":
             gather = src.offset + (j - s) % k
@@ -729,6 +760,9 @@ def _step(ctx, i, st, names, state_words, nbits, sequences):
         taps = st["taps"]
         if not isinstance(taps, list) or not taps:
             ctx.fail(key + ("taps",), "must be a non-empty list of bit positions")
+        if k > MAX_LFSR_WIDTH:
+            ctx.fail(key + ("words",), f"an lfsr step takes words of at most "
+                     f"{MAX_LFSR_WIDTH} bits; the words have {k}")
         taps = [_int(ctx, key + ("taps",), t, lo=0, hi=k - 1) for t in taps]
         steps = _int(ctx, key + ("steps",), st.get("steps", 1), lo=1, hi=1 << 16)
         A = np.zeros((k, k), dtype=np.int64)
@@ -736,9 +770,17 @@ def _step(ctx, i, st, names, state_words, nbits, sequences):
             A[j, j - 1] = 1
         for t in taps:
             A[0, t] ^= 1
+        # A^steps over GF(2) by repeated squaring (common practice): 16 squarings at
+        # most, where one product per step took seconds for 2^16 steps.
         T = np.eye(k, dtype=np.int64)
-        for _ in range(steps):
-            T = (A @ T) & 1
+        power = A
+        e = steps
+        while e:
+            if e & 1:
+                T = (power @ T) & 1
+            e >>= 1
+            if e:
+                power = (power @ power) & 1
         groups = np.stack([w.columns for w in targets])
         return ("linear", groups, T.astype(np.uint8))
     if op == "sbox":
