@@ -10,6 +10,7 @@ Every error gfla raises on purpose is a :class:`GflaError`. Two branches tell a 
 """
 
 __all__ = [
+    "int_text",
     "GflaError",
     "InputError",
     "MathError",
@@ -19,6 +20,16 @@ __all__ = [
     "MethodNotApplicableError",
     "OrderUnavailableError",
 ]
+
+
+def int_text(n, digits=60):
+    """An integer for a message: in decimal when it has at most ``digits`` digits, else
+    by its size ("a 65537-bit integer"), so a huge value from the input neither floods
+    a one-line message nor hits Python's limit on int-to-text conversion."""
+    n = int(n)
+    if abs(n).bit_length() * 0.30103 <= digits:
+        return str(n)
+    return f"{'-' if n < 0 else ''}a {abs(n).bit_length()}-bit integer"
 
 
 class GflaError(Exception):

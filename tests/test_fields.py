@@ -291,3 +291,12 @@ def test_inconsistent_system_carries_a_left_certificate():
         y = sol.left_vector.reshape(1, -1)
         assert not F.matmul(y, A).any()
         assert F.matmul(y, b.reshape(-1, 1)).any()
+
+
+def test_huge_entry_is_named_by_its_size():
+    # 10^5000 has 5001 digits, past Python's default int-to-text limit of 4300
+    # (Python documentation, sys.set_int_max_str_digits); 10^5000 < 2^16610.
+    from gfla.errors import InputError, int_text
+    with pytest.raises(InputError, match="a 16610-bit integer is outside GF"):
+        gfla.field("GF(7)").det([[10 ** 5000]])
+    assert int_text(-(2 ** 200)) == "-a 201-bit integer" and int_text(12345) == "12345"

@@ -222,3 +222,11 @@ def test_gfla_help_does_not_import_numpy():
             "print('numpy' in sys.modules, 'gfla.jobs.keysched' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert out.stdout.split() == ["False", "False"], out.stderr
+
+
+def test_huge_round_numbers_are_input_errors_not_internal_ones():
+    # 2^65536 has 19729 decimal digits, past Python's default limit of 4300 for
+    # int-to-text conversion (Python documentation, sys.set_int_max_str_digits): the
+    # message names the number by its size instead of failing to print it.
+    r = run(["rounds", "simon32-64", "--key", SIMON_KEY, "-r", "2^65536"])
+    assert "a 65537-bit integer" in one_line_error(r, 2)

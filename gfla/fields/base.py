@@ -13,7 +13,7 @@ from collections import namedtuple
 
 import numpy as np
 
-from ..errors import InputError, NotAUnitError
+from ..errors import InputError, NotAUnitError, int_text
 
 __all__ = ["Field", "Solution"]
 
@@ -136,7 +136,7 @@ class Field:
         return out
 
     def _range_message(self, name, idx, value):
-        return (f"{name}{_where(idx)}: {value} is outside {self.spec} "
+        return (f"{name}{_where(idx)}: {int_text(value)} is outside {self.spec} "
                 f"(entries must be 0 .. {self.size - 1})")
 
     def _out(self, U):

@@ -50,7 +50,7 @@ def round_keys(sched, key, first, last):
     ``last - first`` may be at most ``ROUND_LIST_LIMIT - 1``; ``first`` may be any round
     (2^64 and beyond: one polynomial power modulo the characteristic polynomial).
     """
-    from ...errors import InputError
+    from ...errors import InputError, int_text
     n = sched.n
     if isinstance(key, (int, np.integer)):
         if key < 0 or int(key).bit_length() > n:
@@ -59,9 +59,10 @@ def round_keys(sched, key, first, last):
     first = sched.check_round(first, "first round")
     last = sched.check_round(last, "last round")
     if last < first:
-        raise InputError(f"round range {first}..{last} runs backwards")
+        raise InputError(f"round range {int_text(first)}..{int_text(last)} runs backwards")
     if last - first + 1 > ROUND_LIST_LIMIT:
-        raise InputError(f"rounds {first}..{last} would list {last - first + 1} round keys; "
+        raise InputError(f"rounds {int_text(first)}..{int_text(last)} would list "
+                         f"{int_text(last - first + 1)} round keys; "
                          f"at most {ROUND_LIST_LIMIT} at a time (ask for a range a..b, or "
                          "for one round)")
     states = sched.states(key, first, last)

@@ -36,7 +36,7 @@ import sys
 
 import numpy as np
 
-from ...errors import InputError
+from ...errors import InputError, int_text
 from . import bits as B
 from . import gf2poly
 from .errors import NonAffineScheduleError, VaryingLinearPartError
@@ -191,16 +191,16 @@ class AffineSchedule:
             raise InputError(f"{what} {R!r} is not an integer")
         R = int(R)
         if R < 0:
-            raise InputError(f"{what} {R} is negative")
+            raise InputError(f"{what} {int_text(R)} is negative")
         limit = self.round_limit
         if limit is not None and R > limit:
             if self._round_constant is not None:
                 raise InputError(
-                    f"{what} {R}: a callable that takes the round number is run round by "
-                    f"round, up to {limit}")
+                    f"{what} {int_text(R)}: a callable that takes the round number is run "
+                    f"round by round, up to {limit}")
             names = [g.name for g in self.generators if g.limit is not None]
             raise InputError(
-                f"{what} {R} is past the end of the listed round constants "
+                f"{what} {int_text(R)} is past the end of the listed round constants "
                 f"({', '.join(names)}: states 0 .. {limit} are defined; set repeat = true "
                 "to cycle the list)")
         return R
