@@ -479,6 +479,25 @@ def test_search_kernel_agrees_with_full_minor_scan(family, values, power):
         assert len(kept) == total             # the theorem again
 
 
+def test_search_keeps_only_the_best_survivors_while_scanning(monkeypatch):
+    # Small chunks and a small rank_limit make the scan prune its survivors many times;
+    # the ranked set must still be the rank_limit best by (naive count, index) of all
+    # survivors, found here by analysing every candidate (Cauchy: all MDS, by Cauchy's
+    # determinant formula, so every candidate survives).
+    from gfla.jobs.mixing import search
+    F = field(4, 0x13)
+    values = [1, 2, 3, 4, 5, 6, 7, 8, 9]
+    monkeypatch.setattr(search, "_CHUNK", 16)
+    r = mx.search_family(F, "cauchy", 4, values, keep=3, refine=0, rank_limit=3)
+    total = mx.candidate_count("cauchy", 4, len(values))
+    costs = sorted((mx.naive_xor_count(mx.bit_matrix(F, mx.candidate(F, "cauchy", 4, values,
+                                                                   i)[1])), i)
+                   for i in brute_kept(F, "cauchy", 4, values))
+    assert r["kept"] == total == len(costs)
+    assert r["ranked"] == 3
+    assert {b["index"] for b in r["best"]} == {i for _, i in costs[:3]}
+
+
 def test_search_branch_and_involutory_criteria():
     F, G = field(3, 0xB), gal(3, 0xB)
     values = [1, 2, 3, 4, 5]

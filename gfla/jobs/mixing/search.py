@@ -235,8 +235,11 @@ def search_family(F, family, n, values, require="mds", branch=None, involutory=F
     n, vals = _validate(F, family, n, values, require, branch, power)
     total = candidate_count(family, n, len(vals))
     t0 = time.perf_counter()
-    kept_idx = []
-    kept_cost = []
+    # Survivors: only the rank_limit best by (naive count, index) are ever ranked, so
+    # the scan keeps no more than those (memory stays bounded however many survive).
+    kept_idx = np.zeros(0, dtype=np.int64)
+    kept_cost = np.zeros(0, dtype=np.int64)
+    kept = 0
     skipped = 0
     done = 0
     while done < total:
@@ -246,14 +249,16 @@ def search_family(F, family, n, values, require="mds", branch=None, involutory=F
         skipped += int(np.count_nonzero(flags == engine.FLAG_EQUIVALENT))
         hit = np.nonzero(flags >= 0)[0]
         if len(hit):
-            kept_idx.append(hit.astype(np.int64) + done)
-            kept_cost.append(flags[hit].astype(np.int64))
+            kept += len(hit)
+            kept_idx = np.concatenate([kept_idx, hit.astype(np.int64) + done])
+            kept_cost = np.concatenate([kept_cost, flags[hit].astype(np.int64)])
+            if len(kept_idx) > 2 * rank_limit:
+                best_so_far = np.lexsort((kept_idx, kept_cost))[:rank_limit]
+                kept_idx, kept_cost = kept_idx[best_so_far], kept_cost[best_so_far]
         done += cnt
         if progress:
             progress(done, total)
     scan_seconds = time.perf_counter() - t0
-    kept_idx = np.concatenate(kept_idx) if kept_idx else np.zeros(0, dtype=np.int64)
-    kept_cost = np.concatenate(kept_cost) if kept_cost else np.zeros(0, dtype=np.int64)
     order = np.lexsort((kept_idx, kept_cost))[:rank_limit]
     ranked = []
     for pos in order:
@@ -287,7 +292,7 @@ def search_family(F, family, n, values, require="mds", branch=None, involutory=F
         "power": (n if power is None else int(power)) if family == "companion" else None,
         "seed": seed,
         "candidates": total, "tested": tested, "equivalent_skipped": skipped,
-        "kept": int(len(kept_idx)), "ranked": len(ranked),
+        "kept": kept, "ranked": len(ranked),
         "seconds": time.perf_counter() - t0, "scan_seconds": scan_seconds,
         "rate": total / max(scan_seconds, 1e-9),
         "best": best[:keep],
