@@ -47,12 +47,13 @@ import math
 import os
 import re
 import time
+import warnings
 
 from .errors import InputError
 
 __all__ = ["ENV_VARIABLE", "ALWAYS_FITS", "available_memory", "parse_size", "format_bytes",
            "Workspace", "fits", "check_memory", "check_matrices", "check_text_output",
-           "check_npy_header", "read_npy_header", "short_text", "first_line"]
+           "check_npy_header", "read_npy_header", "load_npy", "short_text", "first_line"]
 
 ENV_VARIABLE = "GFLA_MEMORY_LIMIT"
 
@@ -395,10 +396,15 @@ def read_npy_header(path, what="array", objects_note="only integer arrays are re
                                  f".npy {what}")
             try:
                 version = npy_format.read_magic(fh)
-                if version == (1, 0):
-                    shape, fortran, dtype = npy_format.read_array_header_1_0(fh)
-                elif version == (2, 0):
-                    shape, fortran, dtype = npy_format.read_array_header_2_0(fh)
+                if version in ((1, 0), (2, 0)):
+                    # numpy warns on a header it had to re-parse (Python 2 style); the
+                    # header is either read or refused, the warning adds nothing.
+                    with warnings.catch_warnings():
+                        warnings.simplefilter("ignore")
+                        if version == (1, 0):
+                            shape, fortran, dtype = npy_format.read_array_header_1_0(fh)
+                        else:
+                            shape, fortran, dtype = npy_format.read_array_header_2_0(fh)
                 else:
                     raise InputError(f"{path}: .npy format version {version[0]}.{version[1]} "
                                      "is not read here (1.0 and 2.0 are)")
@@ -429,6 +435,15 @@ def read_npy_header(path, what="array", objects_note="only integer arrays are re
         raise InputError(f"{path}: header declares a negative dimension "
                          f"(shape {short_text(str(shape))})")
     return tuple(int(s) for s in shape), dtype, bool(fortran), offset
+
+
+def load_npy(path, mmap_mode=None):
+    """``numpy.load`` with pickles disallowed and numpy's warning about re-parsed
+    (Python 2 style) headers silenced: call :func:`check_npy_header` first."""
+    import numpy as np
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return np.load(path, mmap_mode=mmap_mode, allow_pickle=False)
 
 
 def check_npy_header(path, what="the array", copies=1,

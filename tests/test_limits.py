@@ -596,6 +596,20 @@ def test_cli_npy_header_refused_exit_2(tmp_path):
     assert "needs 8 TB" in r.stderr and "1 TB = 10^12 bytes" in r.stderr
 
 
+def test_npy_with_a_python2_style_header_loads_without_a_warning(tmp_path):
+    # A header with "2L" dimensions, as Python 2's numpy wrote them: numpy re-parses it
+    # and emits a UserWarning (numpy.lib.format); gfla reads it and prints nothing but
+    # the result. det [[1, 2], [3, 4]] = -2 = 5 mod 7 (2 x 2 formula, common practice).
+    import struct
+    header = b"{'descr': '<i8', 'fortran_order': False, 'shape': (2L, 2L), }"
+    header += b" " * (64 - 10 - len(header) - 1) + b"\n"
+    path = tmp_path / "py2.npy"
+    path.write_bytes(b"\x93NUMPY\x01\x00" + struct.pack("<H", len(header)) + header
+                     + struct.pack("<4q", 1, 2, 3, 4))
+    r = run_cli("det", "--field", "GF(7)", "-i", path)
+    assert r.returncode == 0 and r.stdout.strip() == "5" and r.stderr == "", r.stderr
+
+
 def test_cli_product_of_text_matrices_refused(monkeypatch):
     from gfla.cli.main import cli
     n = 400

@@ -185,14 +185,14 @@ def parse_vector(text, hex=False):
 def _read_npy(path, what):
     import numpy as np
 
-    from ..limits import check_npy_header
+    from ..limits import check_npy_header, load_npy
 
     # The header alone first: a malformed one or an object dtype is refused unread, and
     # a declared shape that would not fit in memory (or that the file is too short to
     # hold) is refused with its size before numpy allocates it.
     check_npy_header(path, f"the {what}")
     try:
-        array = np.load(path, allow_pickle=False)
+        array = load_npy(path)
     except ValueError as exc:
         if "allow_pickle" in str(exc) or "pickle" in str(exc).lower():
             raise InputError(

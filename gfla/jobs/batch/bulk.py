@@ -17,7 +17,7 @@ import os
 import numpy as np
 
 from ...errors import InconsistentSystemError, InputError
-from ...limits import Workspace, check_npy_header, first_line, short_text
+from ...limits import Workspace, check_npy_header, first_line, load_npy, short_text
 from .ops import BULK_OPERATIONS, OPERATIONS
 from .records import error_object, field_of, limit_threads
 
@@ -46,7 +46,7 @@ def _load(path, what):
                      objects_note="for example matrices of different sizes; "
                      f"{what} must be one integer array")
     try:
-        arr = np.load(path, mmap_mode="r", allow_pickle=False)
+        arr = load_npy(path, mmap_mode="r")
     except ValueError as exc:
         if "pickle" in str(exc).lower() or "object" in str(exc).lower():
             raise InputError(
