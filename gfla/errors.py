@@ -11,6 +11,7 @@ Every error gfla raises on purpose is a :class:`GflaError`. Two branches tell a 
 
 __all__ = [
     "int_text",
+    "file_error",
     "GflaError",
     "InputError",
     "MathError",
@@ -30,6 +31,21 @@ def int_text(n, digits=60):
     if abs(n).bit_length() * 0.30103 <= digits:
         return str(n)
     return f"{'-' if n < 0 else ''}a {abs(n).bit_length()}-bit integer"
+
+
+def file_error(path, exc):
+    """The one-line ``InputError`` for an ``OSError`` (or the ``ValueError`` of a file
+    name with a NUL byte or that the file system cannot encode) raised while opening or
+    reading ``path``; raise it ``from None``."""
+    if isinstance(exc, FileNotFoundError):
+        return InputError(f"{path}: no such file")
+    if isinstance(exc, IsADirectoryError):
+        return InputError(f"{path}: is a directory, not a file")
+    if isinstance(exc, PermissionError):
+        return InputError(f"{path}: permission denied")
+    if isinstance(exc, OSError):
+        return InputError(f"{path}: cannot be read ({exc.strerror or exc})")
+    return InputError(f"{ascii(path)}: not a usable file name")
 
 
 class GflaError(Exception):

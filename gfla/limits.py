@@ -49,7 +49,7 @@ import re
 import time
 import warnings
 
-from .errors import InputError
+from .errors import InputError, file_error
 
 __all__ = ["ENV_VARIABLE", "ALWAYS_FITS", "available_memory", "parse_size", "format_bytes",
            "Workspace", "fits", "check_memory", "check_matrices", "check_text_output",
@@ -416,16 +416,8 @@ def read_npy_header(path, what="array", objects_note="only integer arrays are re
             offset = fh.tell()
     except InputError:
         raise
-    except FileNotFoundError:
-        raise InputError(f"{path}: no such file") from None
-    except IsADirectoryError:
-        raise InputError(f"{path}: is a directory, not a file") from None
-    except PermissionError:
-        raise InputError(f"{path}: permission denied") from None
-    except OSError as exc:
-        raise InputError(f"{path}: cannot be read ({exc.strerror or exc})") from None
-    except ValueError:  # a NUL byte, or a name the file system cannot encode
-        raise InputError(f"{ascii(path)}: not a usable file name") from None
+    except (OSError, ValueError) as exc:
+        raise file_error(path, exc) from None
     dtype = np.dtype(dtype)
     if dtype.hasobject:
         raise InputError(f"{path}: holds Python objects (object dtype); {objects_note}")

@@ -17,7 +17,7 @@ text is a well-formed rectangular array of integers.
 import os
 import re
 
-from ..errors import InputError
+from ..errors import InputError, file_error
 from ..limits import first_line
 
 __all__ = ["parse_matrix", "parse_vector", "load_matrix_file", "load_vector_file"]
@@ -215,16 +215,8 @@ def _read_text(path):
     try:
         with open(path, "rb") as handle:
             data = handle.read()
-    except FileNotFoundError:
-        raise InputError(f"{path}: no such file") from None
-    except IsADirectoryError:
-        raise InputError(f"{path}: is a directory, not a file") from None
-    except PermissionError:
-        raise InputError(f"{path}: permission denied") from None
-    except OSError as exc:
-        raise InputError(f"{path}: cannot be read ({exc.strerror or exc})") from None
-    except ValueError:  # a NUL byte, or a name the file system cannot encode
-        raise InputError(f"{ascii(path)}: not a usable file name") from None
+    except (OSError, ValueError) as exc:
+        raise file_error(path, exc) from None
     if data.startswith(_NPY_MAGIC):
         return None
     try:

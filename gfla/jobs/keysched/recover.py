@@ -36,7 +36,7 @@ import re
 
 import numpy as np
 
-from ...errors import InputError
+from ...errors import InputError, file_error
 from . import bits as B
 from .errors import InconsistentKnownBitsError
 
@@ -147,14 +147,8 @@ def load_known_bits(path, key_bits, check_round=None):
     try:
         with open(path, "rb") as fh:
             data = fh.read()
-    except FileNotFoundError:
-        raise InputError(f"{path}: no such file") from None
-    except IsADirectoryError:
-        raise InputError(f"{path}: is a directory, not a file") from None
-    except OSError as exc:
-        raise InputError(f"{path}: cannot be read ({exc.strerror or exc})") from None
-    except ValueError:  # a NUL byte, or a name the file system cannot encode
-        raise InputError(f"{ascii(path)}: not a usable file name") from None
+    except (OSError, ValueError) as exc:
+        raise file_error(path, exc) from None
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError:
