@@ -34,7 +34,7 @@ import re
 import stat
 from dataclasses import dataclass
 
-from ...errors import InputError
+from ...errors import InputError, file_error
 
 __all__ = ["MANIFEST_NAME", "FORMAT", "FORMAT_VERSION", "Manifest", "ShardEntry",
            "shard_file_name", "shard_size_for", "build_manifest", "manifest_text",
@@ -193,8 +193,11 @@ def load_manifest(directory):
         raise InputError(f"{where}: not a regular file")
     if st.st_size > MAX_MANIFEST_BYTES:
         raise InputError(f"{where}: {st.st_size} bytes is far too large for a manifest")
-    with open(path, "rb") as fh:
-        raw = fh.read(st.st_size + 1)  # read(n) reserves n bytes up front: keep n small
+    try:
+        with open(path, "rb") as fh:
+            raw = fh.read(st.st_size + 1)  # read(n) reserves n bytes up front: keep n small
+    except (OSError, ValueError) as exc:
+        raise file_error(path, exc) from None
     return parse_manifest(raw, directory, where)
 
 
