@@ -500,9 +500,6 @@ class _Repair(_Encode):
             else:
                 assert got == d.repaired[name], name
 
-    def expected_code(self, work):  # --resume finishes (or finds finished) the run
-        return self.clean_code
-
     def rerun(self, work):
         return _gfla(*self.argv(work, True)[len(GFLA):])
 
@@ -602,6 +599,9 @@ class _BatchCase:
                     pass
             return 0.0
         return fraction
+
+    def expected_code(self, work):  # --resume finishes (or finds finished) the run
+        return self.clean_code
 
     def rerun(self, work):
         return _gfla(*self.argv(work, True)[len(GFLA):])
