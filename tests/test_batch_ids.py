@@ -155,3 +155,15 @@ def test_registry_grows_without_false_duplicates(tmp_path):
     assert found == [(count, count + 1, 123457)]
     assert reg.count == count
     assert reg.keys.shape[0] >= count / 0.7
+
+
+def test_a_line_of_control_characters_is_an_error_line_not_a_blank_one(tmp_path):
+    # JSON whitespace is space, tab, LF and CR only (RFC 8259, section 2); U+001C and
+    # U+2028 count as whitespace for Python's str.strip, not for JSON.
+    inp, out = tmp_path / "in.jsonl", tmp_path / "out.jsonl"
+    _write(inp, [_record("a"), "\x1c", " \t ", "\u2028", _record("b")])
+    summary = run(str(inp), str(out))
+    got = _read(out)
+    assert [g["id"] for g in got] == ["a", None, None, "b"]
+    assert [g["line"] for g in got if "error" in g] == [2, 4]
+    assert summary.records == 4 and summary.failed == 2

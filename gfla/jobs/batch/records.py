@@ -245,6 +245,11 @@ class _Output:
         self.kinds[type(exc).__name__ if isinstance(exc, GflaError) else "InternalError"] += 1
 
 
+# JSON's whitespace (RFC 8259, section 2): str.strip() would also drop characters such as
+# U+001C or U+2028, turning a line that holds only them into a blank line instead of an
+# error line.
+_JSON_SPACE = " \t\r\n"
+_JSON_SPACE_BYTES = b" \t\r\n"
 _scan_once = json.decoder.JSONDecoder().scan_once
 
 
@@ -368,7 +373,7 @@ def _process_lines(data, first_line):
     ids = ([], [], [])  # per record with an id: the id, its line in the chunk, its slot
     id_rids, id_lines, id_slots = ids
     for offset, text in enumerate(lines):
-        text = text.strip()
+        text = text.strip(_JSON_SPACE if type(text) is str else _JSON_SPACE_BYTES)
         if not text:
             continue
         slot = len(slots)
@@ -462,7 +467,7 @@ def scan_ids(data, first_line, threads=None):
     ids = ([], [], [])
     slot = 0
     for offset, text in enumerate(lines):
-        text = text.strip()
+        text = text.strip(_JSON_SPACE if type(text) is str else _JSON_SPACE_BYTES)
         if not text:
             continue
         try:
